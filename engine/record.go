@@ -135,7 +135,9 @@ const recordFormat = 1
 // FormatVersion is the version of the record encoding; stores refuse records of another.
 const FormatVersion = recordFormat
 
-func appendF64(b []byte, x float64) []byte { return binary.LittleEndian.AppendUint64(b, math.Float64bits(x)) }
+func appendF64(b []byte, x float64) []byte {
+	return binary.LittleEndian.AppendUint64(b, math.Float64bits(x))
+}
 
 // AppendBinary appends the canonical encoding of r.
 func (r *Record) AppendBinary(b []byte) []byte {
