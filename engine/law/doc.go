@@ -35,16 +35,23 @@
 //   - Domain: the outer boundary (w = 0) is placed where a many-to-one bound, with the
 //     reflection principle and Chernoff's chi-square bound, shows that its effect on
 //     the answer is below 1e-15 (see domainRadius); the bound is added to the error.
-//   - Error: grids with h and tau halved together. Three levels give two Richardson
-//     extrapolants X1, X2 of the h^2 + tau^2 error term; the reported value is X2 and
-//     the reported error is |X2 - X1| (a conservative estimate: in the asymptotic range
-//     X2's error is about |X2 - X1|/15) plus the boundary bound and a round-off floor.
-//     The level is raised until the error is below Options.Tolerance.
+//   - Error: grids with h and every time step halved together (level l has h_0/2^l).
+//     Successive levels give Richardson extrapolants X_l = P_l + (P_l - P_{l-1})/3 that
+//     remove the h^2 + tau^2 term. The reported value is the finest X; its error is
+//     estimated from the distance D to the previous extrapolant: D/5 (three times the
+//     asymptotic D/15) when four levels confirm the O(h^4) rate, D itself otherwise;
+//     plus the boundary bound and a round-off floor. Levels are added until the
+//     estimate is below Options.Tolerance (with a cap on the work, and a clear error).
+//   - Work: behind the front u rounds to 1; those nodes, beyond a margin, are left out
+//     of the steps, and values below 1e-300 far ahead of the front are set to zero
+//     (subnormal arithmetic is slow), each changing the answer at round-off level.
 //
-// Cost: the domain is [0, v t + R + O(1)] and the number of steps grows like t, so one
-// solve at fixed grid costs O(t^2); to keep the error fixed as t grows the grid must be
-// refined slowly (the front-speed error is O(h^4) after extrapolation and accumulates
-// over time), see the "Law solver" section of BENCHMARKS.md for the measured growth.
+// Cost: the domain is [0, v t + O(1)] and the number of steps grows like t, so a solve
+// at a fixed grid costs O(t^2); for a fixed error the grid must be refined slowly as t
+// grows (the front-speed error, O(h^4) after extrapolation, accumulates over time). See
+// the "Law solver" section of BENCHMARKS.md for the measured growth. Beyond g t of about
+// 600 the double-precision range ends ahead of the front (values below 1e-300 are
+// dropped), which the error estimate does not cover.
 //
 // The numbers are deterministic: the same call gives the same bits.
 package law

@@ -88,28 +88,35 @@ func TestManyToOneBounds(t *testing.T) {
 
 // Grid refinement: with h and every time step halved, the differences of successive
 // levels shrink by 4 (second order in space and time), for pure diffusion and with the
-// reaction; and the Richardson extrapolants' differences shrink by about 16.
+// reaction. Once the start is forgotten (T = 30) the Richardson extrapolants'
+// differences shrink by about 16 (fourth order); at short horizons several O(h^4) terms
+// of either sign compete and the extrapolants' ratio wanders, which the error estimate
+// detects (it then falls back to its conservative form).
 func TestSecondOrder(t *testing.T) {
 	for _, c := range []struct {
 		d          int
 		T, R       float64
 		noReaction bool
-	}{{3, 10, 7, true}, {2, 4, 5.5, false}, {1, 6, 8, false}, {4, 8, 11, false}} {
+	}{{3, 10, 7, true}, {2, 4, 5.5, false}, {1, 6, 8, false}, {4, 8, 11, false}, {3, 30, 40, false}} {
 		p := radialProblem(c.d, 2, c.T, c.R, nodesTo(c.R, c.T), c.noReaction)
 		var v []float64
-		for l := 1; l <= 5; l++ {
+		for l := 0; l <= 4; l++ {
 			x, _ := p.values(l)
 			v = append(v, x[0])
 		}
-		for i := 2; i < len(v); i++ {
-			ratio := (v[i-1] - v[i-2]) / (v[i] - v[i-1])
-			if i >= 3 && math.Abs(ratio-4) > 0.25 {
-				t.Errorf("%+v: level ratio %.3f, want 4 (second order)", c, ratio)
+		for i := 3; i < len(v); i++ {
+			if ratio := (v[i-1] - v[i-2]) / (v[i] - v[i-1]); math.Abs(ratio-4) > 0.25 {
+				t.Errorf("%+v: level ratio %.3f at level %d, want 4 (second order)", c, ratio, i)
 			}
 		}
+		if c.T < 30 {
+			continue
+		}
 		x := func(i int) float64 { return v[i] + (v[i]-v[i-1])/3 }
-		if r := (x(3) - x(2)) / (x(4) - x(3)); r < 10 || r > 24 {
-			t.Errorf("%+v: extrapolant ratio %.2f, want about 16", c, r)
+		for i := 3; i < len(v); i++ {
+			if r := (x(i-1) - x(i-2)) / (x(i) - x(i-1)); r < 12 || r > 20 {
+				t.Errorf("%+v: extrapolant ratio %.2f at level %d, want about 16", c, r, i)
+			}
 		}
 	}
 }
@@ -210,14 +217,13 @@ func TestReactionFlow(t *testing.T) {
 // round-off level.
 func TestTrailingRegionRoundoff(t *testing.T) {
 	for _, d := range []int{1, 3} {
-		T := 60.0
+		T := 150.0
 		R := guess(d, T, 0.5, false)
 		p := radialProblem(d, 2, T, R, nodesTo(R, T), false)
-		a, sa := p.values(1)
-		old := snap
-		snap = 0
-		b, sb := p.values(1)
-		snap = old
+		a, sa := p.values(0)
+		trim = false
+		b, sb := p.values(0)
+		trim = true
 		if math.Abs(a[0]-b[0]) > 1e-13 {
 			t.Errorf("d=%d: trimmed %.16f vs full %.16f", d, a[0], b[0])
 		}

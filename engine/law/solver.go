@@ -33,7 +33,11 @@ const tiny = 1e-300
 
 // snap: u within snap of 1 (w below a few units of round-off) is set to exactly 1, so
 // that round-off noise does not keep the region behind the front active.
-var snap = 1e-14
+const snap = 1e-14
+
+// trim enables leaving the region behind the front out of the steps (a variable so that
+// a test can compare with the untrimmed solve).
+var trim = true
 
 // trailMargin is the number of nodes kept in the step beyond the last node with u < 1.
 const trailMargin = 24
@@ -198,7 +202,9 @@ func (g *grid) solve() ([]float64, stats) {
 			}
 		}
 		st.nodeSteps += float64(last - first + 1)
-		hi = min(n-1, max(top, first)+trailMargin)
+		if trim {
+			hi = min(n-1, max(top, first)+trailMargin)
+		}
 	}
 	reactOver := func(s float64) *reaction {
 		if g.noReaction {
