@@ -114,3 +114,24 @@ func TestSketchMeanMatchesRecords(t *testing.T) {
 		t.Fatalf("histogram holds %d, want 100", hist)
 	}
 }
+
+func TestSketchEncodingRoundTrip(t *testing.T) {
+	c := testCell()
+	s := NewSketch(c)
+	if err := s.AddRecords(c, 6, 10, records(t, c, 6, 10, 60)); err != nil {
+		t.Fatal(err)
+	}
+	enc := s.AppendBinary(nil)
+	back, err := DecodeSketch(enc)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(back.AppendBinary(nil), enc) {
+		t.Fatal("round trip changed the sketch")
+	}
+	for _, cut := range []int{0, 1, len(enc) / 2, len(enc) - 1} {
+		if _, err := DecodeSketch(enc[:cut]); err == nil {
+			t.Errorf("truncated sketch (%d of %d bytes) accepted", cut, len(enc))
+		}
+	}
+}

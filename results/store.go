@@ -1,0 +1,260 @@
+package results
+
+import (
+	"bytes"
+	"crypto/sha256"
+	"encoding/binary"
+	"encoding/json"
+	"errors"
+	"fmt"
+	"os"
+	"time"
+
+	bolt "go.etcd.io/bbolt"
+
+	"bbmx/engine"
+)
+
+// Store layout (bbolt), format "bbmx-store/1":
+//
+//	meta/format         "bbmx-store/1"
+//	meta/engine         engine.FormatVersion, one byte
+//	meta/spec           the canonical sweep spec (opaque bytes, written by the planner)
+//	meta/spec_sha256    SHA-256 of meta/spec: the sweep's identity
+//	cells/<cell id>/cell      the engine.Cell as JSON
+//	cells/<cell id>/sketch    the cell's Sketch encoding
+//	cells/<cell id>/records/  key seed(8 bytes BE) ++ replicate(8 bytes BE) -> record encoding
+//
+// Every write is one bbolt transaction, so a crash leaves the store as of the last commit:
+// a cell's sketch and its records always change together.
+const storeFormat = "bbmx-store/1"
+
+var (
+	bucketMeta  = []byte("meta")
+	bucketCells = []byte("cells")
+	keyRecords  = []byte("records")
+)
+
+// Store is one sweep's results file.
+type Store struct {
+	db   *bolt.DB
+	path string
+}
+
+// Create makes a new store at path holding the given canonical sweep spec. It refuses to
+// overwrite an existing file.
+func Create(path string, spec []byte) (*Store, error) {
+	if _, err := os.Stat(path); err == nil {
+		return nil, fmt.Errorf("%s already exists", path)
+	}
+	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second})
+	if err != nil {
+		return nil, fmt.Errorf("create %s: %w", path, err)
+	}
+	sum := sha256.Sum256(spec)
+	err = db.Update(func(tx *bolt.Tx) error {
+		m, err := tx.CreateBucket(bucketMeta)
+		if err != nil {
+			return err
+		}
+		for k, v := range map[string][]byte{"format": []byte(storeFormat), "engine": {engine.FormatVersion}, "spec": spec, "spec_sha256": sum[:]} {
+			if err := m.Put([]byte(k), v); err != nil {
+				return err
+			}
+		}
+		_, err = tx.CreateBucket(bucketCells)
+		return err
+	})
+	if err != nil {
+		db.Close()
+		os.Remove(path)
+		return nil, err
+	}
+	return &Store{db: db, path: path}, nil
+}
+
+// Open opens an existing store; readOnly allows many readers at once. A file that is not
+// a bbmx store, or one written by another format version, is a clear error.
+func Open(path string, readOnly bool) (*Store, error) {
+	if _, err := os.Stat(path); err != nil {
+		return nil, fmt.Errorf("open store: %w", err)
+	}
+	if err := preflight(path); err != nil {
+		return nil, err
+	}
+	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second, ReadOnly: readOnly})
+	if err != nil {
+		if errors.Is(err, bolt.ErrTimeout) {
+			return nil, fmt.Errorf("%s is in use by another process", path)
+		}
+		return nil, fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
+	}
+	err = db.View(func(tx *bolt.Tx) error {
+		m := tx.Bucket(bucketMeta)
+		if m == nil || tx.Bucket(bucketCells) == nil {
+			return fmt.Errorf("%s is a bbolt file but not a bbmx store", path)
+		}
+		if f := m.Get([]byte("format")); string(f) != storeFormat {
+			return fmt.Errorf("%s has store format %q; this bbmx reads %q", path, f, storeFormat)
+		}
+		if e := m.Get([]byte("engine")); len(e) != 1 || e[0] != engine.FormatVersion {
+			return fmt.Errorf("%s holds records of engine format %v; this bbmx writes %d", path, e, engine.FormatVersion)
+		}
+		return nil
+	})
+	if err != nil {
+		db.Close()
+		return nil, err
+	}
+	return &Store{db: db, path: path}, nil
+}
+
+// Close closes the store.
+func (s *Store) Close() error { return s.db.Close() }
+
+// Spec returns the canonical sweep spec and its SHA-256.
+func (s *Store) Spec() (spec []byte, sum [32]byte, err error) {
+	err = s.db.View(func(tx *bolt.Tx) error {
+		m := tx.Bucket(bucketMeta)
+		spec = bytes.Clone(m.Get([]byte("spec")))
+		copy(sum[:], m.Get([]byte("spec_sha256")))
+		return nil
+	})
+	return spec, sum, err
+}
+
+// TaskResult is what one finished task adds to a cell: replicates [From, From+len(Records))
+// of Seed.
+type TaskResult struct {
+	CellID  string
+	Cell    engine.Cell
+	Seed    uint64
+	From    uint64
+	Records []engine.Record
+	// KeepRecords stores the per-replicate records as well as the sketch.
+	KeepRecords bool
+}
+
+// Commit adds a batch of task results in one transaction (group commit). If extra is not
+// nil it runs inside the same transaction, so a caller's own state (task states) commits
+// atomically with the results. Any error leaves the store unchanged.
+func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error {
+	return s.db.Update(func(tx *bolt.Tx) error {
+		cells := tx.Bucket(bucketCells)
+		for _, r := range batch {
+			cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
+			if err != nil {
+				return err
+			}
+			c := r.Cell.WithDefaults()
+			cj, _ := json.Marshal(c)
+			if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
+				return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
+			}
+			if err := cb.Put([]byte("cell"), cj); err != nil {
+				return err
+			}
+			sk := NewSketch(c)
+			if raw := cb.Get([]byte("sketch")); raw != nil {
+				if sk, err = DecodeSketch(raw); err != nil {
+					return fmt.Errorf("cell %s: %w", r.CellID, err)
+				}
+			}
+			task := NewSketch(c)
+			if err := task.AddRecords(c, r.Seed, r.From, r.Records); err != nil {
+				return fmt.Errorf("cell %s: %w", r.CellID, err)
+			}
+			if err := sk.Merge(task); err != nil {
+				return fmt.Errorf("cell %s: %w", r.CellID, err)
+			}
+			if err := cb.Put([]byte("sketch"), sk.AppendBinary(nil)); err != nil {
+				return err
+			}
+			if r.KeepRecords {
+				rb, err := cb.CreateBucketIfNotExists(keyRecords)
+				if err != nil {
+					return err
+				}
+				var buf []byte
+				for i := range r.Records {
+					buf = r.Records[i].AppendBinary(buf[:0])
+					if err := rb.Put(recordKey(r.Seed, r.Records[i].Replicate), bytes.Clone(buf)); err != nil {
+						return err
+					}
+				}
+			}
+		}
+		if extra != nil {
+			return extra(tx)
+		}
+		return nil
+	})
+}
+
+func recordKey(seed, rep uint64) []byte {
+	k := make([]byte, 16)
+	binary.BigEndian.PutUint64(k, seed)
+	binary.BigEndian.PutUint64(k[8:], rep)
+	return k
+}
+
+// Cells returns the ids of the cells the store holds, in key order.
+func (s *Store) Cells() ([]string, error) {
+	var ids []string
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketCells).ForEachBucket(func(k []byte) error {
+			ids = append(ids, string(k))
+			return nil
+		})
+	})
+	return ids, err
+}
+
+// CellSketch returns a cell's settings and its sketch.
+func (s *Store) CellSketch(id string) (engine.Cell, *Sketch, error) {
+	var c engine.Cell
+	var sk *Sketch
+	err := s.db.View(func(tx *bolt.Tx) error {
+		cb := tx.Bucket(bucketCells).Bucket([]byte(id))
+		if cb == nil {
+			return fmt.Errorf("no cell %q in the store", id)
+		}
+		if err := json.Unmarshal(cb.Get([]byte("cell")), &c); err != nil {
+			return fmt.Errorf("cell %s: corrupt settings: %w", id, err)
+		}
+		var err error
+		sk, err = DecodeSketch(cb.Get([]byte("sketch")))
+		if err != nil {
+			return fmt.Errorf("cell %s: %w", id, err)
+		}
+		return nil
+	})
+	return c, sk, err
+}
+
+// Records calls fn for every stored record of a cell, in (seed, replicate) order.
+func (s *Store) Records(id string, fn func(seed uint64, r engine.Record) error) error {
+	return s.db.View(func(tx *bolt.Tx) error {
+		cb := tx.Bucket(bucketCells).Bucket([]byte(id))
+		if cb == nil {
+			return fmt.Errorf("no cell %q in the store", id)
+		}
+		rb := cb.Bucket(keyRecords)
+		if rb == nil {
+			return nil
+		}
+		return rb.ForEach(func(k, v []byte) error {
+			if len(k) != 16 {
+				return fmt.Errorf("cell %s: corrupt record key", id)
+			}
+			rec, rest, err := engine.DecodeRecord(v)
+			if err != nil || len(rest) != 0 {
+				return fmt.Errorf("cell %s: record %x: %w", id, k, engine.ErrCorruptRecord)
+			}
+			if rec.Replicate != binary.BigEndian.Uint64(k[8:]) {
+				return fmt.Errorf("cell %s: record under key %x is replicate %d", id, k, rec.Replicate)
+			}
+			return fn(binary.BigEndian.Uint64(k), rec)
+		})
+	})
+}
