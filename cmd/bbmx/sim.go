@@ -2,6 +2,8 @@ package main
 
 import (
 	"bufio"
+	"errors"
+	"io/fs"
 	"context"
 	"encoding/hex"
 	"encoding/json"
@@ -21,6 +23,7 @@ import (
 	"golang.org/x/term"
 
 	"bbmx/engine"
+	"bbmx/results"
 )
 
 func init() {
@@ -100,6 +103,8 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 	asJSON := fs.Bool("json", false, "print the summary as one JSON object")
 	out := fs.String("out", "", "write every replicate record to this file as JSON lines")
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
+	storePath := fs.String("store", "", "also add the replicates to this store (created if absent); see bbmx show, audit, merge")
+	first := fs.Uint64("first", 0, "number of the first replicate (to add more replicates to a store)")
 	if err := parseFlags(fs, args, stderr); err != nil {
 		return err
 	}
@@ -149,9 +154,9 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 	start := time.Now()
 	var recs []engine.Record
 	if *splitAt > 0 {
-		recs, err = simulateSplit(ctx, cell, *seed, uint64(*reps), *splitAt, *threads, bar)
+		recs, err = simulateSplit(ctx, cell, *seed, *first, uint64(*reps), *splitAt, *threads, bar)
 	} else {
-		b := engine.Batch{Cell: cell, Seed: *seed, From: 0, To: uint64(*reps), Threads: *threads}
+		b := engine.Batch{Cell: cell, Seed: *seed, From: *first, To: *first + uint64(*reps), Threads: *threads}
 		if bar != nil {
 			var mu sync.Mutex
 			b.Progress = func(int64) { mu.Lock(); bar.Add(1); mu.Unlock() }
@@ -172,6 +177,11 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 			return err
 		}
 	}
+	if *storePath != "" {
+		if err := addToStore(*storePath, cell, *seed, *first, recs); err != nil {
+			return err
+		}
+	}
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		return enc.Encode(sum)
@@ -188,9 +198,9 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 
 // simulateSplit computes every replicate as subtree parts rooted at time s0, spreading the
 // parts of each replicate over the threads, and merges them.
-func simulateSplit(ctx context.Context, c engine.Cell, seed, reps uint64, s0 float64, threads int, bar *progressbar.ProgressBar) ([]engine.Record, error) {
+func simulateSplit(ctx context.Context, c engine.Cell, seed, first, reps uint64, s0 float64, threads int, bar *progressbar.ProgressBar) ([]engine.Record, error) {
 	recs := make([]engine.Record, reps)
-	for rep := uint64(0); rep < reps; rep++ {
+	for rep := first; rep < first+reps; rep++ {
 		if err := ctx.Err(); err != nil {
 			return nil, err
 		}
@@ -220,7 +230,7 @@ func simulateSplit(ctx context.Context, c engine.Cell, seed, reps uint64, s0 flo
 				return nil, err
 			}
 		}
-		if recs[rep], err = parts[0].Record(c); err != nil {
+		if recs[rep-first], err = parts[0].Record(c); err != nil {
 			return nil, err
 		}
 		if bar != nil {
@@ -288,4 +298,25 @@ func writeRecordsJSONL(path string, recs []engine.Record) error {
 		return err
 	}
 	return f.Close()
+}
+
+// addToStore commits one sim run's records to a store, creating it if needed.
+func addToStore(path string, c engine.Cell, seed, first uint64, recs []engine.Record) error {
+	st, err := results.Open(path, false)
+	if errors.Is(err, fs.ErrNotExist) {
+		spec, _ := json.Marshal(map[string]any{"made_by": "bbmx sim", "model": c.Model})
+		st, err = results.Create(path, spec)
+	}
+	if err != nil {
+		return err
+	}
+	id := fmt.Sprintf("d%d-T%g", c.Model.Dim, c.Horizon)
+	err = st.Commit([]results.TaskResult{{CellID: id, Cell: c, Seed: seed, From: first, Records: recs, KeepRecords: true}}, nil)
+	if cerr := st.Close(); err == nil {
+		err = cerr
+	}
+	if err != nil {
+		return fmt.Errorf("store %s: %w (use another --seed or --first to add new replicates)", path, err)
+	}
+	return nil
 }
