@@ -2,14 +2,14 @@ package main
 
 import (
 	"bufio"
-	"errors"
-	"io/fs"
 	"context"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
+	"io/fs"
 	"math"
 	"os"
 	"os/signal"
