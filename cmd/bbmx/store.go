@@ -136,3 +136,50 @@ func runShow(args []string, stdout, stderr io.Writer) error {
 	}
 	return nil
 }
+
+func init() {
+	register(command{name: "export", summary: "write a store's records or cell summaries as CSV, JSON or Parquet", run: runExport})
+}
+
+func runExport(args []string, stdout, stderr io.Writer) error {
+	fs := newFlagSet("export", "STORE --format csv|json|parquet --out PATH [--what records|cells]",
+		"Writes the per-replicate records (one row per replicate: cell, seed, replicate, population,\n"+
+			"maximal radius and its direction, top radii, checkpoint N, Z and W) or one summary row per\n"+
+			"cell, in forms pandas and R read directly. Parquet is for records.")
+	format := fs.String("format", "csv", "csv, json or parquet")
+	out := fs.String("out", "", "file to write")
+	what := fs.String("what", "records", "records or cells")
+	path, err := storeArg(fs, args, stderr)
+	if err != nil {
+		return err
+	}
+	if *out == "" {
+		return usagef("--out is required")
+	}
+	switch *format {
+	case "csv", "json", "parquet":
+	default:
+		return usagef("--format must be csv, json or parquet, got %q", *format)
+	}
+	st, err := results.Open(path, true)
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	switch *what {
+	case "records":
+		err = st.ExportRecords(*out, *format)
+	case "cells":
+		if *format == "parquet" {
+			return usagef("cell summaries export as csv or json")
+		}
+		err = st.ExportCells(*out, *format)
+	default:
+		return usagef("--what must be records or cells, got %q", *what)
+	}
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "wrote %s\n", *out)
+	return nil
+}

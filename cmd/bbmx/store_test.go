@@ -40,3 +40,27 @@ func TestStoreCommands(t *testing.T) {
 		t.Fatalf("missing store: %d %s", code, errs)
 	}
 }
+
+func TestExportCommand(t *testing.T) {
+	dir := t.TempDir()
+	a := filepath.Join(dir, "a.db")
+	if code, _, errs := runCLI(t, "sim", "--horizon", "3", "--replicates", "12", "--store", a); code != 0 {
+		t.Fatal(errs)
+	}
+	for _, f := range []string{"csv", "json", "parquet"} {
+		out := filepath.Join(dir, "r."+f)
+		if code, _, errs := runCLI(t, "export", a, "--format", f, "--out", out); code != 0 {
+			t.Fatalf("%s: %s", f, errs)
+		}
+	}
+	out := filepath.Join(dir, "cells.json")
+	if code, _, errs := runCLI(t, "export", a, "--what", "cells", "--format", "json", "--out", out); code != 0 {
+		t.Fatal(errs)
+	}
+	if !strings.Contains(readFile(t, out), `"replicates": 12`) {
+		t.Fatal("cell summary lacks the replicate count")
+	}
+	if code, _, _ := runCLI(t, "export", a, "--format", "xls", "--out", out); code != 2 {
+		t.Fatal("bad format should be a usage error")
+	}
+}

@@ -1,0 +1,54 @@
+package results
+
+import (
+	"encoding/csv"
+	"os"
+	"path/filepath"
+	"reflect"
+	"strconv"
+	"testing"
+
+	"github.com/parquet-go/parquet-go"
+)
+
+func TestExportRoundTrips(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "s.db")
+	storeWith(t, path, 8, 0, 25)
+	st, err := Open(path, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	want, err := st.Rows()
+	if err != nil || len(want) != 25 {
+		t.Fatalf("%d rows %v", len(want), err)
+	}
+	pq := filepath.Join(dir, "r.parquet")
+	if err := st.ExportRecords(pq, "parquet"); err != nil {
+		t.Fatal(err)
+	}
+	got, err := parquet.ReadFile[RecordRow](pq)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !reflect.DeepEqual(got, want) {
+		t.Fatal("Parquet read back differs from the store's rows")
+	}
+	cp := filepath.Join(dir, "r.csv")
+	if err := st.ExportRecords(cp, "csv"); err != nil {
+		t.Fatal(err)
+	}
+	f, _ := os.Open(cp)
+	recs, err := csv.NewReader(f).ReadAll()
+	f.Close()
+	if err != nil || len(recs) != 26 {
+		t.Fatalf("csv: %d lines %v", len(recs), err)
+	}
+	if x, _ := strconv.ParseFloat(recs[3][6], 64); x != want[2].MaxRadius {
+		t.Fatalf("csv max radius %v, want %v (exact round trip)", x, want[2].MaxRadius)
+	}
+	if err := st.ExportRecords(filepath.Join(dir, "x"), "xls"); err == nil {
+		t.Fatal("unknown format accepted")
+	}
+}
