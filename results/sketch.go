@@ -1,5 +1,7 @@
-// Package results holds what a sweep produces: per-cell sketches that merge exactly, and
-// (being built) the bbolt store they live in.
+// Package results holds what a sweep produces: per-cell sketches that merge exactly, the
+// bbolt store they live in (one file per sweep; its schema is written down in store.go),
+// merging of stores from several runs, the audit that re-simulates stored replicates, and
+// export to CSV, JSON and Parquet.
 //
 // A Sketch summarises a set of replicates of one cell with integer counts on fixed grids
 // and exact sums (engine/exactsum), so merging task sketches in any order and grouping
