@@ -1,0 +1,426 @@
+package engine_test
+
+import (
+	"bytes"
+	"context"
+	"encoding/hex"
+	"math"
+	"reflect"
+	"strconv"
+	"strings"
+	"testing"
+
+	"gonum.org/v1/gonum/stat/distuv"
+
+	"bbmx/engine"
+)
+
+// Statistical checks below use fixed seeds, so each outcome is reproducible. Where a
+// check is "within 4 standard errors", its false-alarm rate under a correct engine is
+// about 6e-5 per comparison (two-sided normal tail beyond 4); the per-test totals are
+// stated beside each test.
+
+func stdCell(d int, T float64, o engine.Observe) engine.Cell {
+	return engine.Cell{Model: engine.Model{Dim: d, Sigma: 1, Beta: 1, Children: 2}, Horizon: T, Observe: o}.WithDefaults()
+}
+
+func runBatch(t *testing.T, c engine.Cell, seed, n uint64) []engine.Record {
+	t.Helper()
+	recs, err := engine.Batch{Cell: c, Seed: seed, From: 0, To: n, Threads: 2}.Run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	return recs
+}
+
+// meanSE returns the sample mean and its standard error.
+func meanSE(x []float64) (float64, float64) {
+	n := float64(len(x))
+	var s float64
+	for _, v := range x {
+		s += v
+	}
+	m := s / n
+	var q float64
+	for _, v := range x {
+		q += (v - m) * (v - m)
+	}
+	return m, math.Sqrt(q / (n - 1) / n)
+}
+
+func within4SE(t *testing.T, what string, x []float64, want float64) {
+	t.Helper()
+	m, se := meanSE(x)
+	if math.Abs(m-want) > 4*se {
+		t.Errorf("%s: mean %.6g, want %.6g (SE %.3g, %.1f SE off)", what, m, want, se, (m-want)/se)
+	}
+}
+
+// TestPopulationGeometric: N_t of binary branching at rate 1 is geometric on {1,2,...}
+// with P(N_t = n) = e^{-t}(1-e^{-t})^{n-1}, and E[N_t(N_t-1)] = 2e^{2t} - 2e^t
+// (Yule process; handbook fact, any standard text on branching processes).
+// False-alarm rate: 1e-4 for the chi-square test plus 6e-5 for the factorial moment.
+func TestPopulationGeometric(t *testing.T) {
+	const T, n = 1.5, 20000
+	c := stdCell(1, T, engine.Observe{})
+	recs := runBatch(t, c, 11, n)
+	p := math.Exp(-T)
+	// Cells n = 1..nmax-1 and the pooled tail n >= nmax, with expected count >= 5 each.
+	nmax := 1
+	for float64(n)*p*math.Pow(1-p, float64(nmax-1)) >= 5 {
+		nmax++
+	}
+	obs := make([]float64, nmax+1)
+	fm := make([]float64, n)
+	for i, r := range recs {
+		k := int(min(r.Population, uint64(nmax)))
+		obs[k]++
+		N := float64(r.Population)
+		fm[i] = N * (N - 1)
+	}
+	var chi2 float64
+	for k := 1; k <= nmax; k++ {
+		e := float64(n) * p * math.Pow(1-p, float64(k-1))
+		if k == nmax {
+			e = float64(n) * math.Pow(1-p, float64(nmax-1)) // P(N >= nmax)
+		}
+		chi2 += (obs[k] - e) * (obs[k] - e) / e
+	}
+	// Chi-square tail from gonum's distuv.
+	pv := 1 - distuv.ChiSquared{K: float64(nmax - 1)}.CDF(chi2)
+	if pv < 1e-4 {
+		t.Errorf("N_T not geometric: chi2 = %.2f on %d df, p = %.2g", chi2, nmax-1, pv)
+	}
+	within4SE(t, "E[N(N-1)]", fm, 2*math.Exp(2*T)-2*math.Exp(T))
+}
+
+// TestManyToOne: E[#{v: |X_v(T)| > r}] = e^{gT} P(chi^2_d > r^2/(sigma^2 T)) (first-moment
+// formula, common practice; chi-square tail from gonum's distuv). With TopK = 4096 and
+// T = 3 every particle is in Top (P(N_3 > 4096) ~ e^{-200}).
+// False-alarm rate: 12 comparisons at 4 SE, about 8e-4 in all.
+func TestManyToOne(t *testing.T) {
+	const T, n = 3.0, 6000
+	for d := 1; d <= 3; d++ {
+		c := stdCell(d, T, engine.Observe{TopK: engine.MaxTopK})
+		recs := runBatch(t, c, 21+uint64(d), n)
+		for _, r := range []float64{0.5, 1.5, 3, 4.5} {
+			x := make([]float64, n)
+			for i, rec := range recs {
+				if uint64(len(rec.Top)) != rec.Population {
+					t.Fatalf("d=%d rep %d: Top has %d of %d particles", d, i, len(rec.Top), rec.Population)
+				}
+				for _, pt := range rec.Top {
+					if pt.Radius > r {
+						x[i]++
+					}
+				}
+			}
+			want := math.Exp(T) * (1 - distuv.ChiSquared{K: float64(d)}.CDF(r*r/T))
+			within4SE(t, "d="+string(rune('0'+d))+" count |X|>"+ftoa(r), x, want)
+		}
+	}
+}
+
+func ftoa(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// TestManyToTwo: E[sum over ordered pairs u != v of <X_u, X_v>] = 2 d e^{2t}(1 - (1+t)e^{-t})
+// for binary branching at rate 1 (derived from the many-to-two formula, common practice;
+// SPEC §3). The sum is |sum X|^2 - sum |X|^2 over the full particle list.
+// False-alarm rate: 3 comparisons at 4 SE, about 2e-4.
+func TestManyToTwo(t *testing.T) {
+	const T, n = 3.0, 6000
+	for d := 1; d <= 3; d++ {
+		c := stdCell(d, T, engine.Observe{TopK: engine.MaxTopK})
+		recs := runBatch(t, c, 31+uint64(d), n)
+		x := make([]float64, n)
+		for i, rec := range recs {
+			s := make([]float64, d)
+			var sq float64
+			for _, pt := range rec.Top {
+				for j := range s {
+					xj := pt.Radius * pt.Dir[j]
+					s[j] += xj
+					sq += xj * xj
+				}
+			}
+			var ss float64
+			for _, v := range s {
+				ss += v * v
+			}
+			x[i] = ss - sq
+		}
+		want := 2 * float64(d) * math.Exp(2*T) * (1 - (1+T)*math.Exp(-T))
+		within4SE(t, "d="+string(rune('0'+d))+" pair sum", x, want)
+	}
+}
+
+// TestMartingaleMeans: E[Z_s(u)] = 0 for every direction u (hence for the sphere average
+// Z_s) and E[W_s(lambda)] = 1 (martingale property, common practice; SPEC §2-§3).
+// False-alarm rate: 80 comparisons at 4 SE, about 5e-3 in all (the Z tails are heavier
+// than normal, so the SE is itself noisy; fixed seed).
+func TestMartingaleMeans(t *testing.T) {
+	const T, n = 2.5, 6000
+	for d := 1; d <= 3; d++ {
+		c := stdCell(d, T, engine.Observe{Checkpoints: []float64{1, 2}, Directions: 16})
+		recs := runBatch(t, c, 41+uint64(d), n)
+		for ci, s := range []float64{1, 2} {
+			name := "d=" + string(rune('0'+d)) + " s=" + string(rune('0'+int(s)))
+			z, w := make([]float64, n), make([]float64, n)
+			for i, rec := range recs {
+				if rec.Checks[ci].Time != s {
+					t.Fatalf("checkpoint %d has time %v, want %v", ci, rec.Checks[ci].Time, s)
+				}
+				z[i], w[i] = rec.Checks[ci].Z, rec.Checks[ci].W
+			}
+			within4SE(t, name+" Z", z, 0)
+			within4SE(t, name+" W", w, 1)
+			for j := 0; j < c.NumDirections(); j++ {
+				zu := make([]float64, n)
+				for i, rec := range recs {
+					zu[i] = rec.Checks[ci].ZDir[j]
+				}
+				within4SE(t, name+" Z(u_"+itoa(j)+")", zu, 0)
+			}
+		}
+	}
+}
+
+// splitCell is a cell whose checkpoints include the split times themselves and whose
+// top-K is small, so splitting exercises the checkpoint cut and the top-K merge.
+func splitCell(d int) engine.Cell {
+	return stdCell(d, 3, engine.Observe{TopK: 8, Checkpoints: []float64{0.5, 1, 1.7, 2, 3}, Directions: 8})
+}
+
+func encode(t *testing.T, r engine.Record) []byte {
+	t.Helper()
+	return r.AppendBinary(nil)
+}
+
+// TestThreadsBitIdentical: the records of a batch do not depend on the number of
+// goroutines (SPEC §4, bit-identity). Deterministic: cannot false-alarm.
+func TestThreadsBitIdentical(t *testing.T) {
+	for d := 1; d <= 3; d++ {
+		c := splitCell(d)
+		var first [32]byte
+		for i, th := range []int{1, 2, 8} {
+			recs, err := engine.Batch{Cell: c, Seed: 5, From: 100, To: 300, Threads: th}.Run(context.Background())
+			if err != nil {
+				t.Fatal(err)
+			}
+			dg := engine.RecordsDigest(recs)
+			if i == 0 {
+				first = dg
+			} else if dg != first {
+				t.Errorf("d=%d: digest with %d threads differs from 1 thread", d, th)
+			}
+		}
+		// And each batch record equals the single-replicate Simulate.
+		recs, _ := engine.Batch{Cell: c, Seed: 5, From: 100, To: 110, Threads: 2}.Run(context.Background())
+		for i, r := range recs {
+			s, err := engine.Simulate(c, 5, 100+uint64(i))
+			if err != nil {
+				t.Fatal(err)
+			}
+			if !bytes.Equal(encode(t, r), encode(t, s)) {
+				t.Errorf("d=%d rep %d: Batch and Simulate differ", d, 100+i)
+			}
+		}
+	}
+}
+
+// TestSplitBitIdentical: a replicate split at s0 into ranges of subtrees, merged in order,
+// gives the unsplit record byte for byte (SPEC §4, splitting). Deterministic.
+func TestSplitBitIdentical(t *testing.T) {
+	checked := map[int]int{}
+	for d := 1; d <= 3; d++ {
+		c := splitCell(d)
+		for rep := uint64(0); rep < 6; rep++ {
+			whole, err := engine.Simulate(c, 9, rep)
+			if err != nil {
+				t.Fatal(err)
+			}
+			want := encode(t, whole)
+			for _, s0 := range []float64{0.5, 1, 2} {
+				roots, err := engine.CountRoots(c, 9, rep, s0)
+				if err != nil {
+					t.Fatal(err)
+				}
+				for _, parts := range []int{2, 3, int(roots)} {
+					if parts < 2 || uint64(parts) > roots {
+						continue
+					}
+					var cuts []uint64
+					for i := 0; i <= parts; i++ {
+						cuts = append(cuts, roots*uint64(i)/uint64(parts))
+					}
+					var acc *engine.Part
+					for i := 0; i < parts; i++ {
+						p, err := engine.SimulatePart(c, 9, rep, s0, cuts[i], cuts[i+1])
+						if err != nil {
+							t.Fatal(err)
+						}
+						if p.Roots != roots {
+							t.Fatalf("part roots %d, CountRoots %d", p.Roots, roots)
+						}
+						if acc == nil {
+							acc = p
+						} else if err := acc.Merge(p); err != nil {
+							t.Fatal(err)
+						}
+					}
+					got, err := acc.Record(c)
+					if err != nil {
+						t.Fatal(err)
+					}
+					if !bytes.Equal(encode(t, got), want) {
+						t.Errorf("d=%d rep %d: split at %v into %d of %d roots differs from unsplit", d, rep, s0, parts, roots)
+					}
+					checked[parts]++
+				}
+			}
+		}
+	}
+	if len(checked) < 3 {
+		t.Errorf("too few split shapes exercised: %v", checked)
+	}
+	// An incomplete part cannot become a record, and non-adjacent parts do not merge.
+	c := splitCell(2)
+	roots, _ := engine.CountRoots(c, 9, 0, 2)
+	if roots >= 3 {
+		a, _ := engine.SimulatePart(c, 9, 0, 2, 0, 1)
+		b, _ := engine.SimulatePart(c, 9, 0, 2, 2, 3)
+		if _, err := a.Record(c); err == nil {
+			t.Error("Record of an incomplete part gave no error")
+		}
+		if err := a.Merge(b); err == nil {
+			t.Error("merging non-adjacent parts gave no error")
+		}
+	}
+}
+
+// pinnedDigest is pinned from this implementation: RecordsDigest of Simulate(splitCell(2),
+// seed 2026, replicates 0..9). It guards against silent changes to the random streams or
+// the encoding; a deliberate change must update it (and bump FormatVersion if needed).
+const pinnedDigest = "18c370f840ed85aec2518851e7fae6f0016880194735d1c7736c0a26a1746b9e"
+
+// TestDigestStableAndSeeded: the digest of a fixed (seed, cell, replicate) is stable
+// across calls and pinned; different seeds give different digests. Deterministic.
+func TestDigestStableAndSeeded(t *testing.T) {
+	c := splitCell(2)
+	digest := func(seed uint64) [32]byte {
+		var recs []engine.Record
+		for rep := uint64(0); rep < 10; rep++ {
+			r, err := engine.Simulate(c, seed, rep)
+			if err != nil {
+				t.Fatal(err)
+			}
+			recs = append(recs, r)
+		}
+		return engine.RecordsDigest(recs)
+	}
+	a, b := digest(2026), digest(2026)
+	if a != b {
+		t.Fatal("digest of the same replicates differs between calls")
+	}
+	if got := hex.EncodeToString(a[:]); got != pinnedDigest {
+		t.Errorf("digest %s, pinned %s", got, pinnedDigest)
+	}
+	if digest(2027) == a {
+		t.Error("seeds 2026 and 2027 give the same digest")
+	}
+	r0, _ := engine.Simulate(c, 2026, 0)
+	r1, _ := engine.Simulate(c, 2026, 1)
+	if bytes.Equal(encode(t, r0)[2:], encode(t, r1)[2:]) {
+		t.Error("replicates 0 and 1 give the same record")
+	}
+}
+
+// TestRecordRoundTrip: DecodeRecord inverts AppendBinary, and truncated or corrupt bytes
+// give an error (never a panic). Deterministic.
+func TestRecordRoundTrip(t *testing.T) {
+	for d := 1; d <= 3; d++ {
+		c := splitCell(d)
+		var buf []byte
+		var recs []engine.Record
+		for rep := uint64(0); rep < 5; rep++ {
+			r, err := engine.Simulate(c, 3, rep)
+			if err != nil {
+				t.Fatal(err)
+			}
+			recs = append(recs, r)
+			buf = r.AppendBinary(buf)
+		}
+		rest := buf
+		for i, want := range recs {
+			got, r, err := engine.DecodeRecord(rest)
+			if err != nil {
+				t.Fatalf("d=%d record %d: %v", d, i, err)
+			}
+			rest = r
+			if !reflect.DeepEqual(got, want) {
+				t.Errorf("d=%d record %d: decoded record differs", d, i)
+			}
+		}
+		if len(rest) != 0 {
+			t.Errorf("d=%d: %d bytes left after decoding", d, len(rest))
+		}
+		one := recs[0].AppendBinary(nil)
+		for n := 0; n < len(one); n++ {
+			if _, _, err := engine.DecodeRecord(one[:n]); err == nil {
+				t.Fatalf("d=%d: truncation to %d of %d bytes decoded without error", d, n, len(one))
+			}
+		}
+		bad := append([]byte(nil), one...)
+		bad[0] = 0xee // unknown format version
+		if _, _, err := engine.DecodeRecord(bad); err == nil {
+			t.Error("unknown format byte decoded without error")
+		}
+		bad = append([]byte(nil), one...)
+		bad[2] = 0x7f // dimension field (after format and a one-byte replicate) > 64
+		if _, _, err := engine.DecodeRecord(bad); err == nil {
+			t.Error("dimension 127 decoded without error")
+		}
+	}
+}
+
+// TestValidate: Cell.Validate rejects out-of-range settings with an error naming the
+// bad value. Deterministic.
+func TestValidate(t *testing.T) {
+	good := stdCell(2, 2, engine.Observe{Checkpoints: []float64{0.5, 1}})
+	if err := good.Validate(); err != nil {
+		t.Fatalf("valid cell rejected: %v", err)
+	}
+	cases := []struct {
+		name, mention string
+		edit          func(c *engine.Cell)
+	}{
+		{"d=0", "0", func(c *engine.Cell) { c.Model.Dim = 0 }},
+		{"T=0", "0", func(c *engine.Cell) { c.Horizon = 0 }},
+		{"T<0", "-1", func(c *engine.Cell) { c.Horizon = -1 }},
+		{"T=NaN", "NaN", func(c *engine.Cell) { c.Horizon = math.NaN() }},
+		{"k=1", "1", func(c *engine.Cell) { c.Model.Children = 1 }},
+		{"sigma=0", "0", func(c *engine.Cell) { c.Model.Sigma = 0 }},
+		{"sigma<0", "-0.5", func(c *engine.Cell) { c.Model.Sigma = -0.5 }},
+		{"checkpoint>T", "2.5", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 2.5} }},
+		{"decreasing", "0.7", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 0.7} }},
+		{"repeated", "1", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 1} }},
+	}
+	for _, tc := range cases {
+		c := good
+		c.Observe.Checkpoints = append([]float64(nil), good.Observe.Checkpoints...)
+		tc.edit(&c)
+		err := c.Validate()
+		if err == nil {
+			t.Errorf("%s: accepted", tc.name)
+			continue
+		}
+		if !strings.Contains(err.Error(), tc.mention) || strings.Contains(err.Error(), "\n") {
+			t.Errorf("%s: error %q should be one line naming %s", tc.name, err, tc.mention)
+		}
+	}
+	if _, err := engine.Simulate(stdCell(0, 1, engine.Observe{}), 1, 0); err == nil {
+		t.Error("Simulate accepted d = 0")
+	}
+}
+
+func itoa(i int) string { return strconv.Itoa(i) }
