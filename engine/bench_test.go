@@ -1,0 +1,49 @@
+package engine
+
+import (
+	"fmt"
+	"math/rand/v2"
+	"testing"
+)
+
+// BenchmarkNode reports the engine's cost per tree node (T = 10, no checkpoints).
+func BenchmarkNode(b *testing.B) {
+	for _, d := range []int{1, 2, 3} {
+		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
+			c := Cell{Model: Model{Dim: d, Sigma: 1, Beta: 1, Children: 2}, Horizon: 10}.WithDefaults()
+			w := newWalker(c)
+			var nodes uint64
+			for i := 0; i < b.N; i++ {
+				w.nodes = 0
+				if _, err := w.run(1, uint64(i), 0, 0, 1); err != nil {
+					b.Fatal(err)
+				}
+				nodes += w.nodes
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(nodes), "ns/node")
+		})
+	}
+}
+
+// BenchmarkRawVariates is the floor: per node, reseed the PCG and draw d normals and one
+// exponential, as the engine does, with nothing else.
+func BenchmarkRawVariates(b *testing.B) {
+	for _, d := range []int{1, 2, 3} {
+		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
+			p := rand.NewPCG(0, 0)
+			r := rand.New(p)
+			var s float64
+			for i := 0; i < b.N; i++ {
+				p.Seed(uint64(i), uint64(i)*0x9e3779b97f4a7c15)
+				s += r.ExpFloat64()
+				for j := 0; j < d; j++ {
+					s += r.NormFloat64()
+				}
+			}
+			if s == 0.5 {
+				b.Log(s)
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
+		})
+	}
+}
