@@ -102,7 +102,6 @@ func CountRoots(c Cell, seed, rep uint64, splitAt float64) (uint64, error) {
 	}
 	w := newWalker(c)
 	w.splitAt = splitAt
-	w.part = w.newPart(rep, splitAt, 0, 0)
 	w.from, w.to = 0, 0 // count only: no subtree is walked
 	w.prefix = false
 	w.top(rootKey(seed, c.Key(), rep), 0, w.level(0), 0)
