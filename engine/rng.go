@@ -1,6 +1,9 @@
 package engine
 
-import "math/rand/v2"
+import (
+	"math"
+	"math/bits"
+)
 
 // key identifies one node of one replicate's genealogical tree: a 128-bit hash of
 // (sweep seed, cell, replicate, path of child indices from the root). Every random
@@ -34,17 +37,118 @@ func (k key) child(i int) key {
 	return key{hi: a, lo: b}
 }
 
-// nodeRand is a generator that is re-seeded in place for every node: reseeding a PCG
-// costs a few nanoseconds and allocates nothing, where a new generator per node would
-// allocate and cost several times more.
-type nodeRand struct {
-	pcg *rand.PCG
-	r   *rand.Rand
+// nodeRand is a generator that is re-seeded in place for every node. It is PCG-DXSM with
+// a 128-bit state (the generator of math/rand/v2's PCG, same constants, same output
+// function) and the ziggurat method for the exponential and normal laws (Marsaglia and
+// Tsang, "The Ziggurat Method for Generating Random Variables", Journal of Statistical
+// Software 5 (2000)) with math/rand/v2's tables, written out here so the calls inline and
+// go through no interface. Its draws equal those of rand.New(rand.NewPCG(hi, lo)) bit for
+// bit (TestGeneratorMatchesStdlib), so the engine's output is what it was with the
+// standard library's generator.
+type nodeRand struct{ hi, lo uint64 }
+
+func newNodeRand() nodeRand { return nodeRand{} }
+
+func (n *nodeRand) seed(k key) { n.hi, n.lo = k.hi, k.lo }
+
+// Uint64 advances the 128-bit LCG state and applies the DXSM output function.
+func (n *nodeRand) Uint64() uint64 {
+	const (
+		mulHi = 2549297995355413924
+		mulLo = 4865540595714422341
+		incHi = 6364136223846793005
+		incLo = 1442695040888963407
+	)
+	hi, lo := bits.Mul64(n.lo, mulLo)
+	hi += n.hi*mulLo + n.lo*mulHi
+	lo, c := bits.Add64(lo, incLo, 0)
+	hi, _ = bits.Add64(hi, incHi, c)
+	n.lo, n.hi = lo, hi
+	const cheapMul = 0xda942042e4dd58b5
+	hi ^= hi >> 32
+	hi *= cheapMul
+	hi ^= hi >> 48
+	hi *= lo | 1
+	return hi
 }
 
-func newNodeRand() nodeRand {
-	p := rand.NewPCG(0, 0)
-	return nodeRand{pcg: p, r: rand.New(p)}
+// Float64 is uniform on [0, 1) with 53 random bits.
+func (n *nodeRand) Float64() float64 { return float64(n.Uint64()<<11>>11) / (1 << 53) }
+
+// ExpFloat64 is a standard exponential variate. The fast path (one table test) is kept
+// small so that it inlines; the rare rejection steps are in expSlow.
+func (n *nodeRand) ExpFloat64() float64 {
+	u := n.Uint64()
+	j := uint32(u)
+	i := uint8(u >> 32)
+	if j < zigKe[i] {
+		return float64(j) * float64(zigWe[i])
+	}
+	return n.expSlow(u)
 }
 
-func (n nodeRand) seed(k key) { n.pcg.Seed(k.hi, k.lo) }
+func (n *nodeRand) expSlow(u uint64) float64 {
+	const re = 7.69711747013104972
+	for {
+		j := uint32(u)
+		i := uint8(u >> 32)
+		x := float64(j) * float64(zigWe[i])
+		if j < zigKe[i] {
+			return x
+		}
+		if i == 0 {
+			return re - math.Log(n.Float64())
+		}
+		if zigFe[i]+float32(n.Float64())*(zigFe[i-1]-zigFe[i]) < float32(math.Exp(-x)) {
+			return x
+		}
+		u = n.Uint64()
+	}
+}
+
+// NormFloat64 is a standard normal variate; fast path inlined, rare steps in normSlow.
+func (n *nodeRand) NormFloat64() float64 {
+	u := n.Uint64()
+	j := int32(u)
+	i := u >> 32 & 0x7F
+	if absInt32(j) < zigKn[i] {
+		return float64(j) * float64(zigWn[i])
+	}
+	return n.normSlow(u)
+}
+
+func absInt32(i int32) uint32 {
+	if i < 0 {
+		return uint32(-i)
+	}
+	return uint32(i)
+}
+
+func (n *nodeRand) normSlow(u uint64) float64 {
+	const rn = 3.442619855899
+	for {
+		j := int32(u)
+		i := u >> 32 & 0x7F
+		x := float64(j) * float64(zigWn[i])
+		if absInt32(j) < zigKn[i] {
+			return x
+		}
+		if i == 0 {
+			for {
+				x = -math.Log(n.Float64()) * (1.0 / rn)
+				y := -math.Log(n.Float64())
+				if y+y >= x*x {
+					break
+				}
+			}
+			if j > 0 {
+				return rn + x
+			}
+			return -rn - x
+		}
+		if zigFn[i]+float32(n.Float64())*(zigFn[i-1]-zigFn[i]) < float32(math.Exp(-.5*x*x)) {
+			return x
+		}
+		u = n.Uint64()
+	}
+}

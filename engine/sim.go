@@ -141,7 +141,7 @@ func (w *walker) run(seed, rep uint64, splitAt float64, from, to uint64) (*Part,
 // depth-first order and those in [from, to) are walked in full.
 func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 	w.rng.seed(k)
-	death := birth + w.rng.r.ExpFloat64()/w.beta
+	death := birth + w.rng.ExpFloat64()/w.beta
 	if death > w.splitAt {
 		i := w.rootIndex
 		w.rootIndex++
@@ -162,7 +162,7 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 	w.nodes++
 	w.rng.seed(k)
-	death := birth + w.rng.r.ExpFloat64()/w.beta
+	death := birth + w.rng.ExpFloat64()/w.beta
 	end := w.level(depth + 1)
 	copy(end, pos)
 	if death > w.horizon {
@@ -205,7 +205,7 @@ func (w *walker) move(pos []float64, dt float64) {
 	}
 	sd := w.sigma * math.Sqrt(dt)
 	for i := range pos {
-		pos[i] += sd * w.rng.r.NormFloat64()
+		pos[i] += sd * w.rng.NormFloat64()
 	}
 }
 
