@@ -54,14 +54,6 @@ func parseTimes(s string) ([]float64, error) {
 	return out, nil
 }
 
-// absurdNodes is the total node count above which a run is refused unless forced:
-// about 100 CPU-hours at the engine's measured tens of nanoseconds per node.
-const absurdNodes = 1e13
-
-// nominalNodeSeconds is a deliberately round per-node cost used for estimates shown
-// before a run; BENCHMARKS.md has the measured figures.
-const nominalNodeSeconds = 40e-9
-
 type simSummary struct {
 	Dim            int     `json:"dim"`
 	Sigma          float64 `json:"sigma"`
@@ -134,8 +126,8 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 		return usagef("--split-at %v is outside [0, horizon %v)", *splitAt, *horizon)
 	}
 	nodes := m.ExpectedNodes(*horizon) * float64(*reps)
-	cpu := nodes * nominalNodeSeconds
-	if nodes > absurdNodes && !*force {
+	cpu := nodes * engine.NominalNodeSeconds
+	if nodes > engine.AbsurdNodes && !*force {
 		return usagef("refusing: about %.3g tree nodes, roughly %.0f CPU-hours (estimate); lower --horizon or --replicates, or pass --force", nodes, cpu/3600)
 	}
 	if cpu > 60 && !*asJSON {
