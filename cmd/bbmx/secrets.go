@@ -34,6 +34,11 @@ const (
 	secretClientKey  = "client.key"
 )
 
+// coordinatorName is in every server certificate, so workers can check the certificate with
+// --tls-server-name when the coordinator's node is not known in advance (a batch job) or
+// when it is reached through a service of that name (Kubernetes).
+const coordinatorName = "bbmx-coordinator"
+
 var secretFiles = []string{secretToken, secretCACert, secretServerCert, secretServerKey, secretClientCert, secretClientKey}
 
 func runSecrets(args []string, stdout, stderr io.Writer) error {
@@ -57,8 +62,10 @@ func runSecretsInit(args []string, stdout, stderr io.Writer) error {
 			"talk securely, each file mode 0600:\n"+
 			"  token                    random shared token (256 bits, hex) for --token-file\n"+
 			"  ca.crt                   a new self-signed certificate authority (ECDSA P-256)\n"+
-			"  server.crt, server.key   the coordinator's certificate, valid for the --hosts names, localhost,\n"+
-			"                           127.0.0.1, ::1 and this machine's hostname\n"+
+			"  server.crt, server.key   the coordinator's certificate, valid for the --hosts names, this\n"+
+			"                           machine's hostname, localhost, 127.0.0.1, ::1 and the fixed name\n"+
+			"                           bbmx-coordinator (for workers that cannot know the coordinator's node\n"+
+			"                           in advance: they pass --tls-server-name bbmx-coordinator)\n"+
 			"  client.crt, client.key   a worker certificate, for coordinators that demand client certificates\n"+
 			"The authority's private key is used once and never written, so nobody can mint more\n"+
 			"certificates from it: to add a host, run init again (with --force) and hand out the new files.\n"+
@@ -159,7 +166,7 @@ func secretHosts(list string) ([]string, error) {
 	if name, err := os.Hostname(); err == nil && checkHostName(name) == nil {
 		add(strings.ToLower(name))
 	}
-	for _, h := range []string{"localhost", "127.0.0.1", "::1"} {
+	for _, h := range []string{coordinatorName, "localhost", "127.0.0.1", "::1"} {
 		add(h)
 	}
 	return hosts, nil

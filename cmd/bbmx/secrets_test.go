@@ -70,7 +70,7 @@ func TestSecretsInitFiles(t *testing.T) {
 		t.Errorf("server certificate expires in %v, want about 30 days", d)
 	}
 	host, _ := os.Hostname()
-	for _, name := range []string{"head01.lab.example", "10.1.2.3", "localhost", "127.0.0.1", "::1", strings.ToLower(host)} {
+	for _, name := range []string{"head01.lab.example", "10.1.2.3", "bbmx-coordinator", "localhost", "127.0.0.1", "::1", strings.ToLower(host)} {
 		if _, err := srv.Verify(x509.VerifyOptions{DNSName: name, Roots: pool, KeyUsages: []x509.ExtKeyUsage{x509.ExtKeyUsageServerAuth}}); err != nil {
 			t.Errorf("server certificate for %q: %v", name, err)
 		}
@@ -268,7 +268,7 @@ func TestSecretHosts(t *testing.T) {
 	for _, h := range hs {
 		seen[h]++
 	}
-	for _, h := range []string{"localhost", "127.0.0.1", "::1"} {
+	for _, h := range []string{"bbmx-coordinator", "localhost", "127.0.0.1", "::1"} {
 		if seen[h] != 1 {
 			t.Errorf("%s appears %d times in %v", h, seen[h], hs)
 		}
