@@ -35,6 +35,13 @@ type walker struct {
 	rootIndex uint64 // depth-first index of the next particle alive at splitAt
 	prefix    bool   // whether this part takes contributions of nodes dead before splitAt
 	nodes     uint64 // nodes visited (for cost accounting)
+	// histLo2: a squared radius below which a leaf certainly falls left of the histogram
+	// (0 if the left edge is at or below radius 0)
+	histLo2 float64
+	// invBeta = 1/beta, used instead of dividing when that gives the same bits (beta a
+	// power of two, so 1/beta is exact)
+	invBeta      float64
+	invBetaExact bool
 }
 
 func newWalker(c Cell) *walker {
@@ -47,6 +54,14 @@ func newWalker(c Cell) *walker {
 		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda, rng: newNodeRand(),
 	}
 	w.dirs = DirectionGrid(m.Dim, w.nDirs)
+	if frac, _ := math.Frexp(m.Beta); frac == 0.5 {
+		w.invBeta, w.invBetaExact = 1/m.Beta, true
+	}
+	if lo := w.centre + w.hist0; lo > 0 {
+		// 1e-9 relative is far above the rounding of r - centre - hist0 and of lo*lo.
+		lo *= 1 - 1e-9
+		w.histLo2 = lo * lo * (1 - 1e-9)
+	}
 	g := m.Growth()
 	for _, s := range w.checks {
 		w.zScale = append(w.zScale, -2*g*s)
@@ -151,37 +166,55 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 		return
 	}
 	end := w.level(depth + 1)
-	copy(end, pos)
-	w.advance(birth, death, end, w.prefix)
+	w.advance(birth, death, pos, end, w.prefix)
 	for i := 0; i < w.k; i++ {
 		w.top(k.child(i), death, end, depth+1)
 	}
 }
 
 // node walks the full subtree of the node with key k, born at birth at position pos.
+// The last child is walked by the loop rather than by a call, so the recursion depth
+// and the call count are those of the other children only.
 func (w *walker) node(k key, birth float64, pos []float64, depth int) {
-	w.nodes++
-	w.rng.seed(k)
-	death := birth + w.rng.ExpFloat64()/w.beta
-	end := w.level(depth + 1)
-	copy(end, pos)
-	if death > w.horizon {
-		w.advance(birth, w.horizon, end, true)
-		w.leaf(end)
-		return
-	}
-	w.advance(birth, death, end, true)
-	for i := 0; i < w.k; i++ {
-		w.node(k.child(i), death, end, depth+1)
+	last := w.k - 1
+	for {
+		w.nodes++
+		w.rng.seed(k)
+		u := w.rng.Uint64() // the exponential's ziggurat fast path, written out
+		var e float64
+		if j, i := uint32(u), uint8(u>>32); j < zigKe[i] {
+			e = float64(j) * float64(zigWe[i])
+		} else {
+			e = w.rng.expSlow(u)
+		}
+		if w.invBetaExact {
+			e *= w.invBeta // equal to e / beta: beta is a power of two
+		} else {
+			e /= w.beta
+		}
+		death := birth + e
+		end := w.level(depth + 1)
+		if death > w.horizon {
+			w.advance(birth, w.horizon, pos, end, true)
+			w.leaf(end)
+			return
+		}
+		w.advance(birth, death, pos, end, true)
+		for i := 0; i < last; i++ {
+			w.node(k.child(i), death, end, depth+1)
+		}
+		k, birth, pos, depth = k.child(last), death, end, depth+1
 	}
 }
 
-// advance moves the particle at pos (born at birth) to time until, drawing its Brownian
-// increment exactly and cutting it at every checkpoint s with birth <= s < until (and at
-// s = until = horizon). Checkpoint contributions are recorded if record is set; the
-// normals are drawn either way so the walk's randomness never depends on the split.
-func (w *walker) advance(birth, until float64, pos []float64, record bool) {
+// advance sets end to the position at time until of the particle born at birth at pos,
+// drawing its Brownian increment exactly and cutting it at every checkpoint s with
+// birth <= s < until (and at s = until = horizon). Checkpoint contributions are recorded if
+// record is set; the normals are drawn either way so the walk's randomness never depends
+// on the split.
+func (w *walker) advance(birth, until float64, pos, end []float64, record bool) {
 	t := birth
+	src := pos
 	for ci, s := range w.checks {
 		if s < birth {
 			continue
@@ -189,24 +222,41 @@ func (w *walker) advance(birth, until float64, pos []float64, record bool) {
 		if s > until || (s == until && until < w.horizon) {
 			break
 		}
-		w.move(pos, s-t)
-		t = s
+		w.move(src, end, s-t)
+		src, t = end, s
 		if record {
-			w.checkpoint(ci, pos)
+			w.checkpoint(ci, end)
 		}
 	}
-	w.move(pos, until-t)
+	w.move(src, end, until-t)
 }
 
-// move adds an exact N(0, sigma^2 dt I_d) increment to pos.
-func (w *walker) move(pos []float64, dt float64) {
+// move sets end = pos + an exact N(0, sigma^2 dt I_d) increment (end = pos if dt <= 0);
+// end and pos have the same length and may be the same slice. The ziggurat's fast path
+// is written out here (NormFloat64 is too large to inline); rare cases go to normSlow.
+func (w *walker) move(pos, end []float64, dt float64) {
+	end = end[:len(pos)]
 	if dt <= 0 {
+		copy(end, pos)
 		return
 	}
 	sd := w.sigma * math.Sqrt(dt)
+	r := w.rng // a local copy stays in registers
 	for i := range pos {
-		pos[i] += sd * w.rng.NormFloat64()
+		u := r.Uint64()
+		j := int32(u)
+		s := u >> 32 & 0x7F
+		var z float64
+		if absInt32(j) < zigKn[s] {
+			z = float64(j) * float64(zigWn[s])
+		} else {
+			t := r // keeps r's address untaken, so r can live in registers
+			z = t.normSlow(u)
+			r = t
+		}
+		end[i] = pos[i] + sd*z
 	}
+	w.rng = r
 }
 
 // checkpoint adds one particle at position x to checkpoint ci's sums:
@@ -240,13 +290,19 @@ func (w *walker) checkpoint(ci int, x []float64) {
 	}
 }
 
-// leaf records a particle alive at the horizon at position x.
+// leaf records a particle alive at the horizon at position x. A particle whose squared
+// radius is safely below both the histogram's left edge and the smallest kept top-K
+// radius only counts towards N_T: it would change nothing else, so its radius is not
+// computed (the margin in histLo2 keeps this exact whatever the rounding).
 func (w *walker) leaf(x []float64) {
 	p := w.part
 	p.pop++
 	var rr float64
 	for _, xi := range x {
 		rr += xi * xi
+	}
+	if rr < w.histLo2 && len(p.top.items) == p.top.k && rr < p.top.items[0].r*p.top.items[0].r*(1-1e-9) {
+		return
 	}
 	r := math.Sqrt(rr)
 	if p.top.worthy(r) {
