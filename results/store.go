@@ -24,6 +24,9 @@ import (
 //	cells/<cell id>/cell      the engine.Cell as JSON
 //	cells/<cell id>/sketch    the cell's Sketch encoding
 //	cells/<cell id>/records/  key seed(8 bytes BE) ++ replicate(8 bytes BE) -> record encoding
+//	provenance/...      which input store gave which ranges (written by merge)
+//	coordinator/...     the coordinator's task states and pending subtree parts (see
+//	                    package coordinator); never part of the content digest
 //
 // Every write is one bbolt transaction, so a crash leaves the store as of the last commit:
 // a cell's sketch and its records always change together.
@@ -121,6 +124,62 @@ func (s *Store) Spec() (spec []byte, sum [32]byte, err error) {
 		return nil
 	})
 	return spec, sum, err
+}
+
+// SetSpec replaces the canonical sweep spec (a sweep that grew: more replicates, cells).
+// The caller checks that the new spec may continue the store.
+func (s *Store) SetSpec(spec []byte) error {
+	sum := sha256.Sum256(spec)
+	return s.db.Update(func(tx *bolt.Tx) error {
+		m := tx.Bucket(bucketMeta)
+		if err := m.Put([]byte("spec"), spec); err != nil {
+			return err
+		}
+		return m.Put([]byte("spec_sha256"), sum[:])
+	})
+}
+
+// Update runs fn in a read-write transaction: for a caller's own buckets (the
+// coordinator's task states), never the cells, which only Commit writes.
+func (s *Store) Update(fn func(tx *bolt.Tx) error) error { return s.db.Update(fn) }
+
+// View runs fn in a read-only transaction.
+func (s *Store) View(fn func(tx *bolt.Tx) error) error { return s.db.View(fn) }
+
+// Path is the store's file name.
+func (s *Store) Path() string { return s.path }
+
+// ContentDigest is the SHA-256 of what the store holds as results: every cell's id,
+// settings, sketch and records, in key order. Two stores with equal digests hold the
+// same results bit for bit, however they were made (one process, many workers, shards
+// merged afterwards); the spec, provenance and coordinator state are left out.
+func (s *Store) ContentDigest() ([32]byte, error) {
+	h := sha256.New()
+	put := func(b []byte) {
+		var n [8]byte
+		binary.BigEndian.PutUint64(n[:], uint64(len(b)))
+		h.Write(n[:])
+		h.Write(b)
+	}
+	err := s.db.View(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketCells).ForEachBucket(func(id []byte) error {
+			cb := tx.Bucket(bucketCells).Bucket(id)
+			put(id)
+			put(cb.Get([]byte("cell")))
+			put(cb.Get([]byte("sketch")))
+			if rb := cb.Bucket(keyRecords); rb != nil {
+				return rb.ForEach(func(k, v []byte) error {
+					put(k)
+					put(v)
+					return nil
+				})
+			}
+			return nil
+		})
+	})
+	var out [32]byte
+	h.Sum(out[:0])
+	return out, err
 }
 
 // TaskResult is what one finished task adds to a cell: replicates [From, From+len(Records))

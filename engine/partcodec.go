@@ -1,0 +1,141 @@
+package engine
+
+import (
+	"encoding/binary"
+	"fmt"
+	"math"
+
+	"bbmx/engine/exactsum"
+)
+
+// Part encoding: a canonical byte form of a Part, so a subtree task computed on one
+// machine can be sent to the coordinator and merged there with the replicate's other
+// parts. Layout (after a format byte): replicate, split time, roots, from, to,
+// population, the top-K items (radius and position), the histogram, and per checkpoint
+// the count and the exact sums.
+const partFormat = 1
+
+// AppendBinary appends the canonical encoding of p.
+func (p *Part) AppendBinary(b []byte) []byte {
+	b = append(b, partFormat)
+	b = binary.AppendUvarint(b, p.Replicate)
+	b = appendF64(b, p.SplitAt)
+	b = binary.AppendUvarint(b, p.Roots)
+	b = binary.AppendUvarint(b, p.From)
+	b = binary.AppendUvarint(b, p.To)
+	b = binary.AppendUvarint(b, p.pop)
+	items := p.top.sorted()
+	b = binary.AppendUvarint(b, uint64(len(items)))
+	for _, it := range items {
+		b = appendF64(b, it.r)
+		for _, x := range it.pos {
+			b = appendF64(b, x)
+		}
+	}
+	b = binary.AppendUvarint(b, uint64(len(p.hist)))
+	for _, h := range p.hist {
+		b = binary.AppendUvarint(b, h)
+	}
+	b = binary.AppendUvarint(b, uint64(len(p.checks)))
+	for i := range p.checks {
+		pc := &p.checks[i]
+		b = binary.AppendUvarint(b, pc.n)
+		b = pc.z.AppendBinary(b)
+		b = pc.w.AppendBinary(b)
+		b = binary.AppendUvarint(b, uint64(len(pc.zdir)))
+		for j := range pc.zdir {
+			b = pc.zdir[j].AppendBinary(b)
+		}
+	}
+	return b
+}
+
+// DecodePart reads a part encoding made for cell c (defaults applied) and checks it
+// against the cell's settings: sizes, finiteness and ranges. Anything else is an error
+// wrapping ErrCorruptRecord.
+func DecodePart(c Cell, b []byte) (*Part, error) {
+	c = c.WithDefaults()
+	bad := func(what string) (*Part, error) { return nil, fmt.Errorf("%w: part %s", ErrCorruptRecord, what) }
+	if len(b) == 0 || b[0] != partFormat {
+		return bad("has an unknown format")
+	}
+	r := &reader{b: b[1:]}
+	p := &Part{Replicate: r.uvarint(math.MaxUint64), SplitAt: r.f64(), Roots: r.uvarint(math.MaxUint64)}
+	p.From = r.uvarint(p.Roots)
+	p.To = r.uvarint(p.Roots)
+	p.pop = r.uvarint(math.MaxUint64)
+	if r.err != nil {
+		return bad("is truncated")
+	}
+	if !(p.SplitAt >= 0) || p.SplitAt >= c.Horizon || p.From >= p.To {
+		return bad("has an impossible split time or subtree range")
+	}
+	d := c.Model.Dim
+	nTop := r.uvarint(uint64(c.Observe.TopK))
+	p.top = topK{k: c.Observe.TopK}
+	for i := uint64(0); i < nTop && r.err == nil; i++ {
+		rad := r.f64()
+		pos := make([]float64, d)
+		var sq float64
+		for j := range pos {
+			pos[j] = r.f64()
+			sq += pos[j] * pos[j]
+		}
+		if r.err == nil && (!(rad >= 0) || math.IsInf(rad, 0) || math.IsInf(sq, 0) || math.IsNaN(sq) ||
+			math.Abs(math.Sqrt(sq)-rad) > 1e-9*(1+rad)) {
+			return bad("has a top radius that is not the length of its position")
+		}
+		p.top.offer(rad, pos)
+	}
+	if r.err == nil && uint64(len(p.top.items)) != nTop {
+		return bad("repeats a top item")
+	}
+	if nb := r.uvarint(MaxBins + 1); r.err == nil && int(nb) != c.Bins() {
+		return bad("has a histogram of another size")
+	}
+	p.hist = make([]uint64, c.Bins())
+	for i := range p.hist {
+		p.hist[i] = r.uvarint(math.MaxUint64)
+	}
+	nc := r.uvarint(MaxCheckpoints)
+	if r.err == nil && int(nc) != len(c.Observe.Checkpoints) {
+		return bad("has another number of checkpoints")
+	}
+	p.checks = make([]partCheck, nc)
+	for i := range p.checks {
+		pc := &p.checks[i]
+		pc.n = r.uvarint(math.MaxUint64)
+		decodeAcc(r, &pc.z)
+		decodeAcc(r, &pc.w)
+		nd := r.uvarint(MaxDirections)
+		if r.err == nil && int(nd) != c.NumDirections() {
+			return bad("has another direction grid")
+		}
+		if r.err != nil {
+			break
+		}
+		pc.zdir = make([]exactsum.Acc, nd)
+		for j := range pc.zdir {
+			decodeAcc(r, &pc.zdir[j])
+		}
+	}
+	if r.err != nil {
+		return bad("is truncated or malformed")
+	}
+	if len(r.b) != 0 {
+		return bad("has trailing bytes")
+	}
+	return p, nil
+}
+
+func decodeAcc(r *reader, a *exactsum.Acc) {
+	if r.err != nil {
+		return
+	}
+	rest, err := a.Decode(r.b)
+	if err != nil {
+		r.err = ErrCorruptRecord
+		return
+	}
+	r.b = rest
+}

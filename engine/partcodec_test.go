@@ -1,0 +1,87 @@
+package engine
+
+import (
+	"bytes"
+	"errors"
+	"testing"
+)
+
+// A split replicate whose parts travel through their encoding must still merge to
+// exactly the unsplit record (the invariant the coordinator relies on).
+func TestPartEncodingRoundTrip(t *testing.T) {
+	c := Cell{Model: Model{Dim: 3, Sigma: 1, Beta: 1, Children: 2}, Horizon: 5,
+		Observe: Observe{Checkpoints: []float64{1, 3}}}.WithDefaults()
+	const seed, rep, s0 = 11, 4, 2.0
+	whole, err := Simulate(c, seed, rep)
+	if err != nil {
+		t.Fatal(err)
+	}
+	roots, err := CountRoots(c, seed, rep, s0)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if roots < 3 {
+		t.Fatalf("want at least 3 roots at s0 for this test, got %d", roots)
+	}
+	cuts := []uint64{0, 1, 2, roots}
+	var acc *Part
+	for i := 0; i+1 < len(cuts); i++ {
+		p, err := SimulatePart(c, seed, rep, s0, cuts[i], cuts[i+1])
+		if err != nil {
+			t.Fatal(err)
+		}
+		enc := p.AppendBinary(nil)
+		q, err := DecodePart(c, enc)
+		if err != nil {
+			t.Fatalf("part %d: %v", i, err)
+		}
+		if !bytes.Equal(q.AppendBinary(nil), enc) {
+			t.Fatalf("part %d: encoding does not round-trip", i)
+		}
+		if acc == nil {
+			acc = q
+		} else if err := acc.Merge(q); err != nil {
+			t.Fatal(err)
+		}
+	}
+	got, err := acc.Record(c)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !bytes.Equal(got.AppendBinary(nil), whole.AppendBinary(nil)) {
+		t.Fatal("decoded parts do not merge to the unsplit record")
+	}
+}
+
+func TestDecodePartRejectsDamage(t *testing.T) {
+	c := Cell{Model: Model{Dim: 2, Sigma: 1, Beta: 1, Children: 2}, Horizon: 4,
+		Observe: Observe{Checkpoints: []float64{1}}}.WithDefaults()
+	p, err := SimulatePart(c, 3, 0, 1.5, 0, 1)
+	if err != nil {
+		t.Fatal(err)
+	}
+	enc := p.AppendBinary(nil)
+	for n := 0; n < len(enc); n += 1 + len(enc)/50 {
+		if _, err := DecodePart(c, enc[:n]); !errors.Is(err, ErrCorruptRecord) {
+			t.Fatalf("truncated to %d bytes: want ErrCorruptRecord, got %v", n, err)
+		}
+	}
+	other := c
+	other.Observe.Checkpoints = nil
+	if _, err := DecodePart(other.WithDefaults(), enc); err == nil {
+		t.Fatal("a part decoded against a cell with other checkpoints")
+	}
+	// Flipping one bit in the top items (from byte 30 on) must be caught: a radius or a
+	// position changes, so the radius is no longer the length of its position.
+	damaged := false
+	for k := 30; k < len(enc) && !damaged; k++ {
+		b2 := bytes.Clone(enc)
+		b2[k] ^= 0x40
+		if _, err := DecodePart(c, b2); err != nil {
+			damaged = true
+		}
+	}
+	if !damaged {
+		t.Fatal("no single-byte corruption was detected")
+	}
+}
