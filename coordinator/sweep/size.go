@@ -1,0 +1,91 @@
+package sweep
+
+import (
+	"math"
+
+	"bbmx/engine"
+)
+
+// MaxParts bounds the subtree tasks one replicate is cut into.
+const MaxParts = 65536
+
+// partsOversample is how many subtrees, on average, each part of a split replicate gets:
+// the automatic split time makes the mean population at s0 this many times the number
+// of parts, so that parts even out although the subtrees' sizes vary a lot.
+const partsOversample = 8
+
+// Sizing is how a cell is cut into tasks.
+type Sizing struct {
+	PerTask uint64  // replicates per task (>= 1) when Parts == 1; 1 when split
+	Parts   int     // > 1: each replicate is split into this many subtree tasks at SplitAt
+	SplitAt float64 // split time s0 (0 when Parts == 1)
+}
+
+// replicateSeconds is the cost model's CPU time of one replicate of c.
+func replicateSeconds(c CellSpec) float64 {
+	return c.Cell.Model.ExpectedNodes(c.Cell.Horizon) * engine.NominalNodeSeconds
+}
+
+// Size cuts a cell into tasks of about TaskSeconds of one core each, by the cost model
+// (Model.ExpectedNodes(T) × engine.NominalNodeSeconds per replicate):
+//
+//   - A replicate that fits in a task: PerTask = max(1, floor(TaskSeconds / cost)) whole
+//     replicates per task, Parts = 1. It does not depend on the cell's replicate count,
+//     so growing a sweep keeps task boundaries where they were.
+//   - A bigger one: Parts = ceil(cost / TaskSeconds), at most MaxParts; each replicate
+//     is cut at time SplitAt into subtrees rooted at the particles then alive, shared
+//     out among Parts tasks. SplitAt is the sweep's split_at if set; otherwise the
+//     smallest s0 with mean population e^{g s0} >= 8 Parts (about eight subtrees a
+//     part), but at most T/2.
+//
+// Any split gives the same records bit for bit, so sizing never changes results.
+func (s *Sweep) Size(c CellSpec) Sizing {
+	cost := replicateSeconds(c)
+	if cost <= s.TaskSeconds {
+		per := math.Floor(s.TaskSeconds / cost)
+		n := uint64(1)
+		if per > 1 {
+			n = uint64(min(per, 1<<62))
+		}
+		return Sizing{PerTask: n, Parts: 1}
+	}
+	parts := MaxParts
+	if p := math.Ceil(cost / s.TaskSeconds); p < MaxParts {
+		parts = max(2, int(p))
+	}
+	s0 := s.SplitAt
+	if s0 == 0 {
+		g := c.Cell.Model.Growth()
+		target := float64(partsOversample * parts)
+		s0 = math.Log(target) / g
+		if math.Exp(g*s0) < target {
+			s0 = math.Nextafter(s0, math.Inf(1))
+		}
+		s0 = min(s0, c.Cell.Horizon/2)
+	}
+	return Sizing{PerTask: 1, Parts: parts, SplitAt: s0}
+}
+
+// TaskCount is the number of tasks the whole cell needs.
+func (s *Sweep) TaskCount(c CellSpec) uint64 {
+	z := s.Size(c)
+	if z.Parts > 1 {
+		return c.Replicates * uint64(z.Parts)
+	}
+	return (c.Replicates + z.PerTask - 1) / z.PerTask
+}
+
+// Estimate totals the cost model over the cells. The figures are estimates: the node
+// count of a replicate is random (its mean is Model.ExpectedNodes) and the time per node
+// is the nominal engine.NominalNodeSeconds, not a measurement on this machine. Absurd is
+// Nodes > engine.AbsurdSweepNodes, the cluster-sized limit (engine.AbsurdNodes, the one
+// for a run on one machine, is a hundred times lower).
+func (s *Sweep) Estimate() Estimate {
+	var e Estimate
+	for _, c := range s.Cells() {
+		e.Nodes += float64(c.Replicates) * c.Cell.Model.ExpectedNodes(c.Cell.Horizon)
+	}
+	e.CPUSeconds = e.Nodes * engine.NominalNodeSeconds
+	e.Absurd = !(e.Nodes <= engine.AbsurdSweepNodes)
+	return e
+}
