@@ -618,3 +618,22 @@ func resultDigest(req *pb.SubmitRequest) [32]byte {
 	h.Sum(out[:0])
 	return out
 }
+
+// Inspect reports the progress of the sweep a store was made by, without running
+// anything (for `bbmx status --store`).
+func Inspect(st *results.Store) (*pb.StatusReply, error) {
+	spec, _, err := st.Spec()
+	if err != nil {
+		return nil, err
+	}
+	sw, err := sweep.Decode(spec)
+	if err != nil {
+		return nil, fmt.Errorf("%s was not made by a sweep: %w", st.Path(), err)
+	}
+	c := &Coordinator{opt: Options{Lease: time.Minute}, sw: sw, hash: sw.Hash(), store: st,
+		byID: map[string]*task{}, workers: map[string]time.Time{}, changed: make(chan struct{})}
+	if err := c.plan(); err != nil {
+		return nil, err
+	}
+	return c.StatusNow(), nil
+}

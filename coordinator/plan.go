@@ -3,6 +3,7 @@ package coordinator
 import (
 	"encoding/json"
 	"fmt"
+	"hash/fnv"
 	"sort"
 
 	"bbmx/coordinator/sweep"
@@ -37,7 +38,7 @@ type task struct {
 	roots    uint64
 	rootFrom uint64
 	rootTo   uint64
-	unit     uint64 // index of the shard unit (a range task, or all parts of one replicate)
+	unit     uint64 // shard unit (a range task, or all parts of one replicate); see unitOf
 
 	state    taskState
 	attempts uint32 // leases handed out, including the current one
@@ -59,6 +60,14 @@ type cellState struct {
 	// parts holds, per split replicate, the parts received so far (committed or being
 	// committed), keyed by rootFrom.
 	parts map[uint64]map[uint64]*engine.Part
+}
+
+// unitOf numbers a cell's j-th shard unit so that shard (unit mod n) spreads every cell
+// over the shards; it depends only on the cell id and j, never on what is done.
+func unitOf(cellID string, j uint64) uint64 {
+	h := fnv.New32a()
+	h.Write([]byte(cellID))
+	return uint64(h.Sum32()) + j
 }
 
 // recordBytes estimates one record's encoding size for cell c.
@@ -139,7 +148,7 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 		for _, m := range todo {
 			for _, r := range cut(m[0], m[1], n) {
 				c.tasks = append(c.tasks, &task{id: fmt.Sprintf("%s/r%d-%d", cs.ID, r[0], r[1]), cell: c,
-					from: r[0], to: r[1], unit: r[0] / n})
+					from: r[0], to: r[1], unit: unitOf(cs.ID, r[0]/n)})
 			}
 		}
 		return c, nil
@@ -168,7 +177,7 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 					continue
 				}
 				t := &task{id: fmt.Sprintf("%s/r%d/s%g/p%d-%d", cs.ID, rep, sz.SplitAt, a, b), cell: c,
-					from: rep, to: rep + 1, split: true, splitAt: sz.SplitAt, roots: roots, rootFrom: a, rootTo: b, unit: rep}
+					from: rep, to: rep + 1, split: true, splitAt: sz.SplitAt, roots: roots, rootFrom: a, rootTo: b, unit: unitOf(cs.ID, rep)}
 				if _, ok := got[a]; ok {
 					t.state = stateDone
 				}

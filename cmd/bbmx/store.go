@@ -125,6 +125,11 @@ func runShow(args []string, stdout, stderr io.Writer) error {
 			fmt.Fprintf(stdout, "    seed %d: replicates [%d, %d)\n", r.Seed, r.From, r.To)
 		}
 	}
+	digest, err := st.ContentDigest()
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "content digest %x (equal digests: the same results bit for bit)\n", digest)
 	prov, err := st.Provenance()
 	if err != nil {
 		return err

@@ -1,0 +1,157 @@
+package main
+
+import (
+	"context"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"io"
+	"os"
+	"os/signal"
+	"runtime"
+	"strconv"
+	"strings"
+	"syscall"
+	"time"
+
+	"bbmx/coordinator"
+	"bbmx/worker"
+)
+
+func init() {
+	register(command{name: "run", summary: "run a sweep on this machine (coordinator and workers in one process), or one shard of it", run: runRun})
+}
+
+// parseShard reads "i/n" with 0 <= i < n.
+func parseShard(s string) (i, n int, err error) {
+	a, b, ok := strings.Cut(s, "/")
+	if ok {
+		i, err = strconv.Atoi(a)
+		if err == nil {
+			n, err = strconv.Atoi(b)
+		}
+	}
+	if !ok || err != nil || n < 1 || i < 0 || i >= n || n > 1<<20 {
+		return 0, 0, usagef("--shard %q: want i/n with 0 <= i < n, e.g. 0/4", s)
+	}
+	return i, n, nil
+}
+
+func runRun(args []string, stdout, stderr io.Writer) error {
+	fs := newFlagSet("run", "SWEEP.toml [--store PATH] [--threads N] [--shard i/n] [--force]",
+		"Runs a sweep on this machine: a coordinator and one worker per core in one process, no\n"+
+			"network. Results go to a store (one bbolt file); the default is bbmx-data/<sweep>.db.\n"+
+			"Ctrl-C stops cleanly; running the same command again resumes where it stopped and never\n"+
+			"counts a replicate twice. The sweep may grow between runs (more replicates, horizons or\n"+
+			"dimensions); changing its model, seed or observables is refused.\n\n"+
+			"With --shard i/n it computes only share i of n (for clusters that forbid long-running\n"+
+			"services: a job array runs every i, then 'bbmx merge' joins the shard stores into\n"+
+			"exactly the store a coordinated run would make). See 'bbmx plan' for the cost first.\n\n"+
+			"When the sweep completes it writes a report folder and prints the headline table.\n"+
+			"Every figure from simulation is a statistical estimate.")
+	storePath := fs.String("store", "", "results store (default bbmx-data/<sweep file name>.db, or ...-shard-i-of-n.db)")
+	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once (one core each)")
+	shard := fs.String("shard", "", "compute only share i of n, written as i/n (e.g. 3/16)")
+	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
+	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")
+	noReport := fs.Bool("no-report", false, "do not write a report at the end")
+	verbose := fs.Bool("verbose", false, "log every lease and commit event")
+	path, err := storeArg(fs, args, stderr)
+	if err != nil {
+		return err
+	}
+	if path == "" || fs.NArg() > 0 {
+		return usagef("name one sweep file, e.g. bbmx run examples/quick.toml")
+	}
+	if *threads < 1 || *threads > 4096 {
+		return usagef("--threads must be between 1 and 4096, got %d", *threads)
+	}
+	opt := coordinator.Options{Lease: 8 * time.Second, Log: newLogger(stderr, *verbose)}
+	suffix := ""
+	if *shard != "" {
+		if opt.Shard, opt.Shards, err = parseShard(*shard); err != nil {
+			return err
+		}
+		suffix = fmt.Sprintf("-shard-%d-of-%d", opt.Shard, opt.Shards)
+	}
+	sw, err := loadSweep(path)
+	if err != nil {
+		return err
+	}
+	if err := checkCost(sw, *force, stderr); err != nil {
+		return err
+	}
+	if *storePath == "" {
+		*storePath = defaultStorePath(path, suffix)
+	}
+	st, created, err := openSweepStore(*storePath, sw)
+	if err != nil {
+		return err
+	}
+	defer st.Close()
+	co, err := coordinator.Open(st, sw, opt)
+	if err != nil {
+		return err
+	}
+	defer co.Close()
+	if !created {
+		fmt.Fprintf(stderr, "resuming %s: only what it lacks is run\n", *storePath)
+	}
+
+	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
+	defer stop()
+	start := time.Now()
+	want := map[string]uint64{}
+	var order []string
+	for _, c := range sw.Cells() {
+		want[c.ID] = c.Replicates
+		order = append(order, c.ID)
+	}
+	stopView, viewDone := make(chan struct{}), make(chan struct{})
+	go progressView(stderr, 250*time.Millisecond, func() []cellProgress {
+		now := co.InFlight()
+		var ps []cellProgress
+		for _, id := range order {
+			if n, ok := now[id]; ok {
+				ps = append(ps, cellProgress{id: id, done: n, want: want[id]})
+			}
+		}
+		return ps
+	}, stopView, viewDone)
+	stats, werr := worker.Run(ctx, co, worker.Options{Threads: *threads, Log: opt.Log})
+	close(stopView)
+	<-viewDone
+	wall := time.Since(start)
+	if werr != nil {
+		return werr
+	}
+	if ctx.Err() != nil {
+		return errors.New("interrupted: everything finished so far is in the store; run the same command again to resume")
+	}
+	if err := co.Wait(ctx); err != nil {
+		return err
+	}
+	co.Close()
+	status := co.StatusNow()
+	for _, p := range status.Parked {
+		fmt.Fprintf(stderr, "PARKED %s after %d failed attempts: %s\n", p.TaskId, p.Attempts, p.Error)
+	}
+	digest, err := st.ContentDigest()
+	if err != nil {
+		return err
+	}
+	share := ""
+	if opt.Shards > 1 {
+		share = fmt.Sprintf(" (shard %d of %d)", opt.Shard, opt.Shards)
+	}
+	fmt.Fprintf(stdout, "sweep %q%s: %d tasks in %s on %d threads; simulating took %s of CPU\n",
+		sw.Name, share, stats.Tasks, wall.Round(time.Millisecond), *threads, stats.Compute.Round(time.Millisecond))
+	fmt.Fprintf(stdout, "store %s, content digest %s\n", *storePath, hex.EncodeToString(digest[:]))
+	if len(status.Parked) > 0 {
+		return fmt.Errorf("%d task(s) parked after repeated failures (listed above); fix the cause and run again", len(status.Parked))
+	}
+	if opt.Shards > 1 || *noReport {
+		return nil
+	}
+	return finalReport(st, *storePath, *reportDir, stdout, stderr)
+}

@@ -1,0 +1,80 @@
+package main
+
+import (
+	"errors"
+	"fmt"
+	"io"
+	"io/fs"
+	"log/slog"
+	"os"
+	"path/filepath"
+	"strings"
+	"time"
+
+	"bbmx/coordinator/sweep"
+	"bbmx/results"
+)
+
+// Shared pieces of the commands that run sweeps (run, serve).
+
+// loadSweep reads a sweep file; a bad file is a usage error (exit 2) naming key and line.
+func loadSweep(path string) (*sweep.Sweep, error) {
+	sw, err := sweep.Load(path)
+	if err != nil {
+		return nil, usageError{err.Error()}
+	}
+	return sw, nil
+}
+
+// checkCost prints the cost model's estimate for what is still to run and refuses an
+// absurd sweep unless forced.
+func checkCost(sw *sweep.Sweep, force bool, stderr io.Writer) error {
+	est := sw.Estimate()
+	if est.Absurd && !force {
+		return usagef("refusing: the sweep needs about %.3g tree nodes, roughly %.0f CPU-hours (estimate from the cost model); shrink it or pass --force",
+			est.Nodes, est.CPUSeconds/3600)
+	}
+	if est.CPUSeconds > 60 {
+		fmt.Fprintf(stderr, "estimate for the whole sweep: %.3g tree nodes, about %.1f CPU-hours (cost model; work already in the store is skipped)\n",
+			est.Nodes, est.CPUSeconds/3600)
+	}
+	return nil
+}
+
+// defaultStorePath is where a sweep's store goes when none is named: a folder
+// bbmx-data/ beside where the command runs, one file per sweep file.
+func defaultStorePath(sweepPath, suffix string) string {
+	stem := strings.TrimSuffix(filepath.Base(sweepPath), filepath.Ext(sweepPath))
+	return filepath.Join("bbmx-data", stem+suffix+".db")
+}
+
+// openSweepStore opens the store at path, creating it (and its folder) for sw if it
+// does not exist yet.
+func openSweepStore(path string, sw *sweep.Sweep) (*results.Store, bool, error) {
+	st, err := results.Open(path, false)
+	if errors.Is(err, fs.ErrNotExist) {
+		if dir := filepath.Dir(path); dir != "." {
+			if err := os.MkdirAll(dir, 0o755); err != nil {
+				return nil, false, err
+			}
+		}
+		st, err = results.Create(path, sw.Canonical())
+		return st, true, err
+	}
+	return st, false, err
+}
+
+// newLogger logs to stderr as text, one line per event.
+func newLogger(w io.Writer, verbose bool) *slog.Logger {
+	lvl := slog.LevelInfo
+	if !verbose {
+		lvl = slog.LevelWarn
+	}
+	return slog.New(slog.NewTextHandler(w, &slog.HandlerOptions{Level: lvl,
+		ReplaceAttr: func(groups []string, a slog.Attr) slog.Attr {
+			if a.Key == slog.TimeKey && len(groups) == 0 {
+				return slog.String("time", a.Value.Time().Format(time.TimeOnly))
+			}
+			return a
+		}}))
+}
