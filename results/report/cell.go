@@ -181,7 +181,7 @@ func (b *builder) cell(c *cellData) error {
 		}
 		if tab != nil {
 			if v := invert(tab, p); !math.IsNaN(v) {
-				r = withTheory(r, fmtNum(v-centre)+" (law solver)", v-centre, KindExact)
+				r = withTheory(r, "law solver: "+fmtNum(v-centre), v-centre, KindExact)
 			}
 		}
 		b.row(r)

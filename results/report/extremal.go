@@ -107,7 +107,7 @@ func (b *builder) extremal(c *cellData) error {
 			method = "mean over replicates ± z·SE"
 		}
 		th := radialMass(m, T, t.lo, t.hi)
-		b.row(withTheory(b.estimate(g, t.what, est, se, method, n), "e^{gT} P(|sigma B_T| - m_T in range) = "+fmtNum(th), th, KindExact))
+		b.row(withTheory(b.estimate(g, t.what, est, se, method, n), "many-to-one: "+fmtNum(th), th, KindExact))
 	}
 	if err := b.plotIntensity(c, edges, means, theory); err != nil {
 		return err

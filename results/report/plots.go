@@ -5,6 +5,7 @@ import (
 	"image/color"
 	"math"
 	"path/filepath"
+	"strconv"
 
 	"gonum.org/v1/plot"
 	"gonum.org/v1/plot/plotter"
@@ -34,6 +35,22 @@ func newPlot(title, xlabel, ylabel string) *plot.Plot {
 	return p
 }
 
+// headroom raises the top of the y axis so that the legend sits above the data.
+func headroom(p *plot.Plot) { p.Y.Max = p.Y.Min + 1.3*(p.Y.Max-p.Y.Min) }
+
+// logTicks labels a log axis at the powers of ten with short numbers.
+type logTicks struct{}
+
+func (logTicks) Ticks(min, max float64) []plot.Tick {
+	ts := plot.LogTicks{Prec: -1}.Ticks(min, max)
+	for i := range ts {
+		if ts[i].Label != "" {
+			ts[i].Label = strconv.FormatFloat(ts[i].Value, 'g', 3, 64)
+		}
+	}
+	return ts
+}
+
 // save writes the plot as name.png and name.svg in the report folder and lists it.
 func (b *builder) save(p *plot.Plot, name, caption string) error {
 	for _, ext := range []string{".png", ".svg"} {
@@ -43,6 +60,19 @@ func (b *builder) save(p *plot.Plot, name, caption string) error {
 	}
 	b.rep.Figures = append(b.rep.Figures, Figure{Name: name, Title: p.Title.Text, Caption: caption})
 	return nil
+}
+
+// addCurve adds f on [lo, hi] to p with a legend entry and raises the y axis to its peak
+// (functions do not take part in the automatic axis range).
+func addCurve(p *plot.Plot, label string, f func(float64) float64, lo, hi float64, col color.Color, dash []vg.Length) {
+	fn := curve(f, lo, hi, col, dash)
+	for i := 0; i <= 200; i++ {
+		if y := f(lo + (hi-lo)*float64(i)/200); y > p.Y.Max && !math.IsInf(y, 0) {
+			p.Y.Max = y
+		}
+	}
+	p.Add(fn)
+	p.Legend.Add(label, fn)
 }
 
 func curve(f func(float64) float64, lo, hi float64, col color.Color, dash []vg.Length) *plotter.Function {
@@ -92,15 +122,12 @@ func (b *builder) plotShift(c *cellData, xs []float64, gf *fit.GumbelFit, tab *l
 		centre := c.cell.Model.Centring(c.cell.Horizon)
 		const dh = 0.01
 		dens := func(x float64) float64 { return (tab.At(x+centre+dh) - tab.At(x+centre-dh)) / (2 * dh) }
-		fn := curve(dens, lo, hi, colTheory, nil)
-		p.Add(fn)
-		p.Legend.Add("exact law (law solver)", fn)
+		addCurve(p, "exact law (law solver)", dens, lo, hi, colTheory, nil)
 	}
 	if gf != nil {
-		fn := curve(gumbelDensity(gf.Gumbel), lo, hi, colFit, dashed)
-		p.Add(fn)
-		p.Legend.Add(fmt.Sprintf("Gumbel MLE: mu=%.3f, beta=%.3f", gf.Mu, gf.Beta), fn)
+		addCurve(p, fmt.Sprintf("Gumbel MLE: mu=%.3f, beta=%.3f", gf.Mu, gf.Beta), gumbelDensity(gf.Gumbel), lo, hi, colFit, dashed)
 	}
+	headroom(p)
 	return b.save(p, "shift-"+c.tag, "Histogram of R*_T - m_T in "+c.label+" with the maximum-likelihood Gumbel and the exact law of the law solver.")
 }
 
@@ -128,12 +155,8 @@ func (b *builder) plotTail(c *cellData, xs []float64, t tailFit) error {
 	u := t.rate.Threshold
 	y0 := math.Log(float64(t.rate.K) / float64(len(xs)))
 	hi := lx[len(lx)-1]
-	fitted := curve(func(x float64) float64 { return y0 + t.slope*(x-u) }, u, hi, colFit, nil)
-	p.Add(fitted)
-	p.Legend.Add(fmt.Sprintf("fitted slope %.3f (top %g)", t.slope, b.opt.TailFraction), fitted)
-	th := curve(func(x float64) float64 { return y0 - theta*(x-u) }, u, hi, colTheory, dashed)
-	p.Add(th)
-	p.Legend.Add(fmt.Sprintf("slope -theta = %.3f", -theta), th)
+	addCurve(p, fmt.Sprintf("fitted slope %.3f (top %g)", t.slope, b.opt.TailFraction), func(x float64) float64 { return y0 + t.slope*(x-u) }, u, hi, colFit, nil)
+	addCurve(p, fmt.Sprintf("slope -theta = %.3f", -theta), func(x float64) float64 { return y0 - theta*(x-u) }, u, hi, colTheory, dashed)
 	return b.save(p, "tail-"+c.tag, "Log empirical survival function of R*_T - m_T in "+c.label+
 		", with the exponential tail fitted above the threshold and the limiting slope -theta through the same point.")
 }
@@ -148,12 +171,9 @@ func (b *builder) plotRandomShift(c *cellData, s float64, ys []float64, gf fit.G
 	p.Add(h)
 	p.Legend.Add(fmt.Sprintf("replicates with Z_s > 0 (%d)", len(ys)), h)
 	lo, hi := span(ys)
-	f1 := curve(gumbelDensity(gf.Gumbel), lo-0.3, hi+0.3, colFit, nil)
-	p.Add(f1)
-	p.Legend.Add(fmt.Sprintf("Gumbel MLE: mu=%.3f, beta=%.3f", gf.Mu, gf.Beta), f1)
-	f2 := curve(gumbelDensity(fixed), lo-0.3, hi+0.3, colTheory, dashed)
-	p.Add(f2)
-	p.Legend.Add(fmt.Sprintf("Gumbel with beta = 1/theta = %.3f", fixed.Beta), f2)
+	addCurve(p, fmt.Sprintf("Gumbel MLE: mu=%.3f, beta=%.3f", gf.Mu, gf.Beta), gumbelDensity(gf.Gumbel), lo-0.3, hi+0.3, colFit, nil)
+	addCurve(p, fmt.Sprintf("Gumbel with beta = 1/theta = %.3f", fixed.Beta), gumbelDensity(fixed), lo-0.3, hi+0.3, colTheory, dashed)
+	headroom(p)
 	return b.save(p, fmt.Sprintf("randomshift-%s-s%g", c.tag, s), fmt.Sprintf(
 		"The random shift at checkpoint s=%g in %s: R*_T - m_T - log(Z_s)/theta over the replicates with Z_s > 0, "+
 			"with the two-parameter Gumbel fit and the fit with the scale held at 1/theta.", s, c.label))
@@ -186,10 +206,9 @@ func (b *builder) plotDirections(c *cellData, angles []float64) error {
 	}
 	p.Add(h)
 	p.Legend.Add(fmt.Sprintf("simulation (%d)", len(xs)), h)
-	fn := curve(dens, lo, hi, colTheory, dashed)
-	p.Add(fn)
-	p.Legend.Add("uniform on the sphere", fn)
+	addCurve(p, "uniform on the sphere", dens, lo, hi, colTheory, dashed)
 	p.Y.Min = 0
+	headroom(p)
 	return b.save(p, "direction-"+c.tag, cap)
 }
 
@@ -204,10 +223,9 @@ func (b *builder) plotPIT(c *cellData, s float64, pit []float64) error {
 	}
 	p.Add(h)
 	p.Legend.Add(fmt.Sprintf("replicates (%d)", len(pit)), h)
-	fn := curve(func(float64) float64 { return 1 }, 0, 1, colTheory, dashed)
-	p.Add(fn)
-	p.Legend.Add("uniform (the limit)", fn)
+	addCurve(p, "uniform (the limit)", func(float64) float64 { return 1 }, 0, 1, colTheory, dashed)
 	p.Y.Min = 0
+	headroom(p)
 	return b.save(p, fmt.Sprintf("pit-%s-s%g", c.tag, s), fmt.Sprintf(
 		"Probability-integral transform of the farthest particle's angle under the measure proportional to Z_s(u)+ du (s=%g), %s.", s, c.label))
 }
@@ -228,7 +246,7 @@ func (b *builder) plotIntensity(c *cellData, edges, means, theory []float64) err
 	}
 	p := newPlot("Mean extremal intensity, "+c.label, "R - m_T", "mean particles per bin")
 	p.Y.Scale = plot.LogScale{}
-	p.Y.Tick.Marker = plot.LogTicks{Prec: -1}
+	p.Y.Tick.Marker = logTicks{}
 	p.Legend.Top, p.Legend.Left = true, true
 	if len(pts) > 0 {
 		sc, err := plotter.NewScatter(pts)
@@ -250,6 +268,8 @@ func (b *builder) plotIntensity(c *cellData, edges, means, theory []float64) err
 		p.Add(ln)
 		p.Legend.Add("many-to-one: e^{gT} P(|sigma B_T| - m_T in bin)", ln)
 	}
+	p.Y.Min = math.Max(p.Y.Min, 0.3/float64(c.sk.N))
+	p.Y.Max *= 10
 	return b.save(p, "intensity-"+c.tag, fmt.Sprintf(
 		"Mean number of particles per replicate in each bin (width %g) of R - m_T in %s, against the exact first moment from the many-to-one formula.",
 		c.cell.Observe.BinWidth, c.label))
@@ -293,6 +313,7 @@ func (b *builder) plotWithin(c *cellData, x, mean, se []float64) error {
 	}
 	p.Add(sc, eb)
 	p.Legend.Add(fmt.Sprintf("mean over %d replicates, %s interval", len(c.reps), pct(b.opt.Level)), sc)
+	headroom(p)
 	return b.save(p, "within-"+c.tag, "Mean number of particles within x of the maximal radius in "+c.label+
 		" (only x where no replicate's kept top radii are exhausted).")
 }
@@ -318,11 +339,12 @@ func (b *builder) plotCentring(m engine.Model, med, mean []horizonPoint, terms [
 		p.Legend.Add(what+" of R*_T", sc)
 		if fits[k].Coef != nil {
 			lf := fits[k]
-			fn := curve(func(T float64) float64 { return centringCurve(m, terms, lf, T) }, lo, hi, col, dashed)
-			p.Add(fn)
-			p.Legend.Add(fmt.Sprintf("%s fit: a=%.3f, b=%.3f", what, lf.Coef[0], lf.Coef[1]), fn)
+			addCurve(p, fmt.Sprintf("%s fit: a=%.3f, b=%.3f", what, lf.Coef[0], lf.Coef[1]), func(T float64) float64 { return centringCurve(m, terms, lf, T) }, lo, hi, col, dashed)
 		}
 	}
+	pad := 0.05 * (hi - lo)
+	p.X.Min, p.X.Max = lo-pad, hi+pad
+	headroom(p)
 	return b.save(p, "centring-"+modelTag(m), fmt.Sprintf(
 		"Median and mean of R*_T minus v T against the horizon for %s, with the weighted fits a T + b log T + c; theory a = v = %.4f, b = (d-4)/(2 theta) = %.4f.",
 		modelLabel(m), m.Speed(), m.LogCoefficient()))

@@ -202,3 +202,76 @@ func TestReportEndToEnd(t *testing.T) {
 	}
 	t.Log("\n" + head)
 }
+
+// Without records the report still fits what the sketch allows, says what it skipped,
+// and the grouped KS test against the exact law passes (p >= 0.001 with fixed seeds:
+// false-alarm rate at most 0.1% per cell, since the grouped test is conservative;
+// derived).
+func TestReportWithoutRecords(t *testing.T) {
+	dir := t.TempDir()
+	st := buildStore(t, filepath.Join(dir, "sweep.db"), 200, false)
+	defer st.Close()
+	rep, err := report.Write(st, filepath.Join(dir, "out"), report.Options{Bootstrap: 50})
+	if err != nil {
+		t.Fatal(err)
+	}
+	checkFiles(t, rep)
+	for _, T := range []float64{3, 4, 5} {
+		g := fmt.Sprintf("d=2 T=%g", T)
+		for _, q := range []string{"mean of R*_T - m_T", "sd of R*_T - m_T", "0.5-quantile of R*_T - m_T",
+			"Gumbel scale of R*_T - m_T", "KS distance to the exact law of R*_T", "mean number with R - m_T >= 0"} {
+			if _, ok := findRow(rep.Rows, g, q); !ok {
+				t.Errorf("%s: no row %q", g, q)
+			}
+		}
+		if _, ok := findRow(rep.Rows, g+" s=1", "share of replicates with Z_s <= 0"); !ok {
+			t.Errorf("%s: no Z_s <= 0 share", g)
+		}
+		ks, _ := findRow(rep.Rows, g, "KS distance to the exact law of R*_T")
+		if ks.P < 0.001 {
+			t.Errorf("%s: grouped KS against the exact law: D=%.4f p=%.2g", g, ks.Estimate, ks.P)
+		}
+		if _, ok := findRow(rep.Rows, g, "mean gap R_(1) - R_(2)"); ok {
+			t.Errorf("%s: gaps reported without records", g)
+		}
+	}
+	skipped := strings.Join(rep.Skipped, "\n")
+	for _, s := range []string{"random-shift Gumbel fit", "direction tests", "gaps and counts within x", "skewness"} {
+		if !strings.Contains(skipped, s) {
+			t.Errorf("skipped list lacks %q:\n%s", s, skipped)
+		}
+	}
+	page, _ := os.ReadFile(filepath.Join(rep.Dir, "report.md"))
+	if !strings.Contains(string(page), "Skipped fits") {
+		t.Error("report.md does not list the skipped fits")
+	}
+}
+
+// Bad options and an empty store are clear errors, and nothing is written.
+func TestReportBadInput(t *testing.T) {
+	dir := t.TempDir()
+	st, err := results.Create(filepath.Join(dir, "empty.db"), []byte("empty"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	out := filepath.Join(dir, "out")
+	for _, c := range []struct {
+		opt  report.Options
+		want string
+	}{
+		{report.Options{Level: 1.5}, "confidence level"},
+		{report.Options{Bootstrap: 3}, "bootstrap"},
+		{report.Options{LawTolerance: 0.5}, "law tolerance"},
+		{report.Options{TailFraction: 0.9}, "tail fraction"},
+		{report.Options{}, "no cells"},
+	} {
+		_, err := report.Write(st, out, c.opt)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("options %+v: error %v, want one about %q", c.opt, err, c.want)
+		}
+	}
+	if _, err := os.Stat(filepath.Join(out, "report.html")); err == nil {
+		t.Error("a failed report wrote report.html")
+	}
+}
