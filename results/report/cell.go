@@ -128,6 +128,9 @@ func (b *builder) cell(c *cellData) error {
 	if grouped {
 		src = "fine histogram (0.01 grid)"
 	}
+	if c.partial > 0 {
+		b.skip(g, "fits on records", fmt.Sprintf("records cover only %d of %d replicates; the sketch is used instead", c.partial, n))
+	}
 
 	// Moments.
 	if len(c.reps) >= 3 {

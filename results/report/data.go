@@ -28,6 +28,9 @@ type cellData struct {
 	reps  []replicate // empty when the store keeps no records
 	label string      // "d=2 T=4"
 	tag   string      // file-name form "d2-T4"
+	// partial is the number of records found when they did not cover every replicate
+	// (they are then ignored).
+	partial int
 }
 
 // loadCells reads every cell with at least one replicate, sorted by model, then horizon.
@@ -75,6 +78,12 @@ func loadCells(st *results.Store, opt Options) ([]*cellData, error) {
 		})
 		if err != nil {
 			return nil, fmt.Errorf("report: %w", err)
+		}
+		if n := len(cd.reps); n > 0 && uint64(n) != sk.N {
+			// Records kept by some tasks only: fits on them would describe a subset, so
+			// the cell is treated as one without records.
+			opt.logf("  cell %s: records for %d of %d replicates; using the sketch only", id, n, sk.N)
+			cd.reps, cd.partial = nil, n
 		}
 		out = append(out, cd)
 	}

@@ -275,3 +275,36 @@ func TestReportBadInput(t *testing.T) {
 		t.Error("a failed report wrote report.html")
 	}
 }
+
+// Records kept for only part of a cell's replicates are not mixed with the sketch: the
+// cell is reported from the sketch, and the page says why.
+func TestReportPartialRecords(t *testing.T) {
+	dir := t.TempDir()
+	st, err := results.Create(filepath.Join(dir, "p.db"), []byte("partial"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	c := engine.Cell{Model: engine.Model{Dim: 1, Sigma: 1, Beta: 1, Children: 2}, Horizon: 3, Observe: engine.Observe{TopK: 4}}
+	recs, err := engine.Batch{Cell: c, Seed: 5, From: 0, To: 200, Threads: 2}.Run(context.Background())
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = st.Commit([]results.TaskResult{
+		{CellID: "c", Cell: c, Seed: 5, From: 0, Records: recs[:100], KeepRecords: true},
+		{CellID: "c", Cell: c, Seed: 5, From: 100, Records: recs[100:]},
+	}, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	rep, err := report.Write(st, filepath.Join(dir, "out"), report.Options{Bootstrap: 20})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(strings.Join(rep.Skipped, "\n"), "records cover only 100 of 200") {
+		t.Errorf("partial records not reported: %q", rep.Skipped)
+	}
+	if r, ok := findRow(rep.Rows, "d=1 T=3", "mean of R*_T - m_T"); !ok || r.N != 200 {
+		t.Errorf("mean row: %+v", r)
+	}
+}
