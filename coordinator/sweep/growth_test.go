@@ -1,0 +1,167 @@
+package sweep
+
+import (
+	"math"
+	"strings"
+	"testing"
+
+	"bbmx/engine"
+)
+
+func TestCheckGrowthAllows(t *testing.T) {
+	old := mustParse(t, base, "old.toml")
+	if err := old.CheckGrowth(old); err != nil {
+		t.Fatalf("a sweep does not continue itself: %v", err)
+	}
+	grown := base
+	for _, r := range [][2]string{
+		{"dims = [1, 2, 3]", "dims = [1, 2, 3, 4]"},
+		{"horizons = [4.0, 6.0, 8.0]", "horizons = [4.0, 6.0, 8.0, 10.0]"},
+		{"replicates = 1000", "replicates = 5000"},
+		{"replicates = 200", "replicates = 300"},
+		{`name = "test"`, `name = "renamed"`},
+		{"task_seconds = 60", "task_seconds = 600"},
+		{"split_at = 0", "split_at = 2.5"},
+	} {
+		if !strings.Contains(grown, r[0]) {
+			t.Fatalf("base has no %q", r[0])
+		}
+		grown = strings.Replace(grown, r[0], r[1], 1)
+	}
+	if err := mustParse(t, grown, "new.toml").CheckGrowth(old); err != nil {
+		t.Fatalf("growth refused: %v", err)
+	}
+}
+
+func TestCheckGrowthRefuses(t *testing.T) {
+	old := mustParse(t, base, "old.toml")
+	cases := []struct{ prefix, repl, want string }{
+		{"seed", "seed = 8", "the store was made with seed 7; this sweep has seed 8: a different seed is a different sweep"},
+		{"sigma", "sigma = 2", "model.sigma = 1; this sweep has 2"},
+		{"beta", "beta = 0.5", "model.beta"},
+		{"children", "children = 3", "model.children"},
+		{"top_k", "top_k = 16", "observe.top_k = 32; this sweep has 16"},
+		{"window", "window = 6", "observe.window"},
+		{"bin_width", "bin_width = 0.1", "observe.bin_width"},
+		{"checkpoints", "checkpoints = [1.0, 2.0, 3.0]", "observe.checkpoints"},
+		{"directions", "directions = 8", "observe.directions"},
+		{"lambda", "lambda = 0.5", "observe.lambda"},
+		{"keep_records", "keep_records = false", "keep_records = true; this sweep has false"},
+		{"dims", "dims = [2, 3]", "dimension 1, which this sweep drops"},
+		{"horizons", "horizons = [4.0, 8.0]", "horizon 6, which this sweep drops"},
+		{"replicates", "replicates = 999", "cell d1-T4 has 1000 replicates in the store's sweep but 999 here"},
+	}
+	for _, c := range cases {
+		s := mustParse(t, with(t, "", c.prefix, c.repl), "new.toml")
+		err := s.CheckGrowth(old)
+		if err == nil || !strings.Contains(err.Error(), c.want) {
+			t.Errorf("%s: got %v, want %q", c.repl, err, c.want)
+		}
+	}
+	// Lowering an override below what the store's sweep asked for.
+	s := mustParse(t, with(t, "[[grid", "replicates", "replicates = 100"), "new.toml")
+	if err := s.CheckGrowth(old); err == nil || !strings.Contains(err.Error(), "cell d3-T8 has 200") {
+		t.Errorf("lowered override: %v", err)
+	}
+}
+
+// expectedNodes is the mean number of tree nodes of one replicate to horizon t: with
+// B branchings, nodes = 1 + k B and N_t = 1 + (k-1) B, so E[nodes] = 1 + k (E[N_t] - 1)/(k-1)
+// with E[N_t] = e^{beta (k-1) t} (derived; the mean population is SPEC §2's).
+func expectedNodes(beta float64, k int, t float64) float64 {
+	kf := float64(k)
+	return 1 + kf*(math.Exp(beta*(kf-1)*t)-1)/(kf-1)
+}
+
+func TestEstimate(t *testing.T) {
+	s := mustParse(t, base, "e.toml")
+	// base: d = 1, 2, 3 × T = 4, 6, 8 at 1000 replicates, except d3-T8 at 200 (derived
+	// by hand from the file).
+	want := 3*1000*(expectedNodes(1, 2, 4)+expectedNodes(1, 2, 6)) + (2*1000+200)*expectedNodes(1, 2, 8)
+	e := s.Estimate()
+	if math.Abs(e.Nodes-want) > 1e-9*want {
+		t.Fatalf("nodes %v, want %v", e.Nodes, want)
+	}
+	if e.CPUSeconds != e.Nodes*engine.NominalNodeSeconds || e.Absurd {
+		t.Fatalf("estimate %+v", e)
+	}
+	// Ternary branching at rate 0.5: g = 1 (derived as above).
+	s3 := mustParse(t, "seed = 1\n[model]\nbeta = 0.5\nchildren = 3\n[grid]\ndims = [2]\nhorizons = [5]\nreplicates = 7\n", "k3.toml")
+	if got, want := s3.Estimate().Nodes, 7*expectedNodes(0.5, 3, 5); math.Abs(got-want) > 1e-9*want {
+		t.Fatalf("k = 3: nodes %v, want %v", got, want)
+	}
+	// A horizon of 40 at a million replicates is about 4.7e23 nodes: absurd.
+	big := mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1000000\n", "big.toml")
+	if !big.Estimate().Absurd {
+		t.Fatal("T = 40 × 1e6 replicates is not absurd")
+	}
+}
+
+func cellOf(t *testing.T, s *Sweep, id string) CellSpec {
+	t.Helper()
+	for _, c := range s.Cells() {
+		if c.ID == id {
+			return c
+		}
+	}
+	t.Fatalf("no cell %s", id)
+	return CellSpec{}
+}
+
+func TestSizeWholeReplicates(t *testing.T) {
+	s := mustParse(t, "seed = 1\n[grid]\ndims = [2]\nhorizons = [4, 14]\nreplicates = 1000\n", "s.toml")
+	for _, c := range []struct {
+		id string
+		t  float64
+	}{{"d2-T4", 4}, {"d2-T14", 14}} {
+		cs := cellOf(t, s, c.id)
+		cost := expectedNodes(1, 2, c.t) * engine.NominalNodeSeconds
+		per := uint64(math.Floor(60 / cost)) // derived from the rule in Size's comment
+		z := s.Size(cs)
+		if z.Parts != 1 || z.SplitAt != 0 || z.PerTask != per {
+			t.Fatalf("%s: %+v, want %d replicates per task", c.id, z, per)
+		}
+		if n, want := s.TaskCount(cs), (1000+per-1)/per; n != want {
+			t.Fatalf("%s: %d tasks, want %d", c.id, n, want)
+		}
+	}
+	// T = 14: a replicate is about 0.096 s, so 623 per task and 2 tasks for 1000.
+	if z := s.Size(cellOf(t, s, "d2-T14")); z.PerTask != 623 || s.TaskCount(cellOf(t, s, "d2-T14")) != 2 {
+		t.Fatalf("d2-T14: %+v", z)
+	}
+}
+
+func TestSizeSplitReplicates(t *testing.T) {
+	s := mustParse(t, "seed = 1\n[grid]\ndims = [3]\nhorizons = [22]\nreplicates = 10\n", "s.toml")
+	cs := cellOf(t, s, "d3-T22")
+	// One replicate is about (2e^22 - 1) × 40 ns ≈ 287 s, so 5 parts of a minute
+	// (derived), split where e^{s0} = 8 × 5.
+	z := s.Size(cs)
+	if z.Parts != 5 || z.PerTask != 1 {
+		t.Fatalf("%+v", z)
+	}
+	if math.Exp(z.SplitAt) < 40 || math.Abs(z.SplitAt-math.Log(40)) > 1e-12 {
+		t.Fatalf("split at %v, want log 40 = %v", z.SplitAt, math.Log(40))
+	}
+	if n := s.TaskCount(cs); n != 50 {
+		t.Fatalf("%d tasks, want 10 × 5", n)
+	}
+	// A split time in the file is used as given.
+	s.SplitAt = 2.5
+	if z := s.Size(cs); z.SplitAt != 2.5 || z.Parts != 5 {
+		t.Fatalf("split_at 2.5: %+v", z)
+	}
+	// The automatic split time is at most T/2 (reachable only below the file's bound on
+	// task_seconds, so the sweep is altered by hand here).
+	s.SplitAt, s.TaskSeconds = 0, 1e-9
+	cs = cellOf(t, mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [4]\nreplicates = 1\n", "h.toml"), "d1-T4")
+	if z := s.Size(cs); z.SplitAt != 2 || z.Parts <= 1 {
+		t.Fatalf("T/2 cap: %+v", z)
+	}
+	// Parts are capped.
+	s.TaskSeconds = 1
+	cs = cellOf(t, mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1\n", "c.toml"), "d1-T40")
+	if z := s.Size(cs); z.Parts != MaxParts {
+		t.Fatalf("parts cap: %+v", z)
+	}
+}
