@@ -70,6 +70,9 @@ type Options struct {
 	CommitWindow time.Duration
 	// PerTask, if non-zero, overrides the replicates per range task (tests, benchmarks).
 	PerTask uint64
+	// Parts, if > 1, splits every replicate into this many subtree tasks at the sweep's
+	// split_at (or T/2), whatever the cost model says (tests of the split path).
+	Parts int
 }
 
 // Coordinator is the state machine of one sweep over its store.
@@ -224,6 +227,12 @@ func (c *Coordinator) plan() error {
 		sz := c.sw.Size(cs)
 		if c.opt.PerTask > 0 && sz.Parts <= 1 {
 			sz.PerTask = c.opt.PerTask
+		}
+		if c.opt.Parts > 1 {
+			sz = sweep.Sizing{PerTask: 1, Parts: c.opt.Parts, SplitAt: c.sw.SplitAt}
+			if sz.SplitAt == 0 {
+				sz.SplitAt = cs.Cell.Horizon / 2
+			}
 		}
 		cell, err := planCell(cs, sz, c.sw.Seed, ranges, stored[cs.ID])
 		if err != nil {

@@ -1,0 +1,403 @@
+package main
+
+// Tests of distributed sweeps with real processes on loopback: a coordinator
+// (bbmx serve), worker processes (bbmx work), kill -9 of either, restarts, tokens and
+// TLS. Each compares the final store's content digest with a local run of the same
+// sweep, which itself equals merged shards.
+
+import (
+	"bytes"
+	"context"
+	"fmt"
+	"net"
+	"os"
+	"os/exec"
+	"path/filepath"
+	"regexp"
+	"strings"
+	"sync"
+	"syscall"
+	"testing"
+	"time"
+
+	pb "bbmx/proto/bbmx/v1"
+	"bbmx/worker"
+)
+
+// A sweep of six tasks of about a second each on one core (task_seconds = 1 and the
+// cost model), so that processes can be killed in the middle of a task.
+const processSweep = `name = "process-test"
+seed = 5
+task_seconds = 1
+[grid]
+dims = [1, 2]
+horizons = [7, 8]
+replicates = 5000
+[observe]
+checkpoints = [2]
+`
+
+var (
+	binOnce sync.Once
+	binPath string
+	binErr  error
+)
+
+// bbmxBinary builds the command once per test run.
+func bbmxBinary(t *testing.T) string {
+	t.Helper()
+	binOnce.Do(func() {
+		dir, err := os.MkdirTemp("", "bbmx-bin-")
+		if err != nil {
+			binErr = err
+			return
+		}
+		binPath = filepath.Join(dir, "bbmx")
+		out, err := exec.Command("go", "build", "-o", binPath, ".").CombinedOutput()
+		if err != nil {
+			binErr = fmt.Errorf("go build: %v\n%s", err, out)
+		}
+	})
+	if binErr != nil {
+		t.Fatal(binErr)
+	}
+	return binPath
+}
+
+type proc struct {
+	cmd      *exec.Cmd
+	out, err bytes.Buffer
+	done     chan struct{}
+}
+
+func start(t *testing.T, args ...string) *proc {
+	t.Helper()
+	p := &proc{cmd: exec.Command(bbmxBinary(t), args...), done: make(chan struct{})}
+	p.cmd.Stdout, p.cmd.Stderr = &p.out, &p.err
+	if err := p.cmd.Start(); err != nil {
+		t.Fatal(err)
+	}
+	go func() { p.cmd.Wait(); close(p.done) }()
+	t.Cleanup(func() {
+		p.cmd.Process.Kill()
+		<-p.done
+	})
+	return p
+}
+
+// wait waits for the process to exit and returns its exit code.
+func (p *proc) wait(t *testing.T, limit time.Duration) int {
+	t.Helper()
+	select {
+	case <-p.done:
+		return p.cmd.ProcessState.ExitCode()
+	case <-time.After(limit):
+		p.cmd.Process.Kill()
+		<-p.done
+		t.Fatalf("%v did not finish within %v\nstdout:\n%s\nstderr:\n%s", p.cmd.Args[1:], limit, p.out.String(), p.err.String())
+		return -1
+	}
+}
+
+func freePort(t *testing.T) string {
+	ln, err := net.Listen("tcp", "127.0.0.1:0")
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer ln.Close()
+	return ln.Addr().String()
+}
+
+// setup writes the sweep and a token into a fresh folder.
+func setup(t *testing.T) (dir, sweepFile, token string) {
+	dir = t.TempDir()
+	sweepFile = filepath.Join(dir, "sweep.toml")
+	token = filepath.Join(dir, "token")
+	os.WriteFile(sweepFile, []byte(processSweep), 0o644)
+	os.WriteFile(token, []byte("process-test-token-0123456789\n"), 0o600)
+	return
+}
+
+var digestRE = regexp.MustCompile(`content digest ([0-9a-f]{64})`)
+
+func storeDigest(t *testing.T, store string) string {
+	t.Helper()
+	code, out, errs := runCLI(t, "show", store)
+	m := digestRE.FindStringSubmatch(out)
+	if code != 0 || m == nil {
+		t.Fatalf("show %s: exit %d: %s %s", store, code, out, errs)
+	}
+	return m[1]
+}
+
+var (
+	localOnce   sync.Once
+	localDigest string
+)
+
+// localRun is the digest of `bbmx run` of the sweep in one process.
+func localRun(t *testing.T) string {
+	localOnce.Do(func() {
+		dir, sw, _ := setup(t)
+		store := filepath.Join(dir, "local.db")
+		if code, _, errs := runCLI(t, "run", sw, "--store", store, "--no-report"); code != 0 {
+			t.Fatalf("local run: exit %d: %s", code, errs)
+		}
+		localDigest = storeDigest(t, store)
+	})
+	if localDigest == "" {
+		t.Fatal("local run failed earlier")
+	}
+	return localDigest
+}
+
+// status asks the coordinator at addr for its status.
+func status(t *testing.T, addr, token string) *pb.StatusReply {
+	tok, _ := os.ReadFile(token)
+	cl, closeFn, err := worker.Dial(addr, strings.TrimSpace(string(tok)), worker.TLSFiles{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer closeFn()
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	s, err := worker.Status(ctx, cl)
+	if err != nil {
+		return nil
+	}
+	return s
+}
+
+// until polls cond every 50ms for up to limit.
+func until(t *testing.T, limit time.Duration, what string, cond func() bool) {
+	t.Helper()
+	end := time.Now().Add(limit)
+	for !cond() {
+		if time.Now().After(end) {
+			t.Fatalf("timed out waiting for %s", what)
+		}
+		time.Sleep(50 * time.Millisecond)
+	}
+}
+
+func leased(s *pb.StatusReply) (n uint64) {
+	if s == nil {
+		return 0
+	}
+	for _, c := range s.Cells {
+		n += c.TasksLeased
+	}
+	return n
+}
+
+// A coordinator with three worker processes, a local run, and merged shards make the
+// same store, bit for bit.
+func TestProcessCoordinatedEqualsLocalAndShards(t *testing.T) {
+	want := localRun(t)
+	dir, sw, tok := setup(t)
+	store := filepath.Join(dir, "served.db")
+	addrFile := filepath.Join(dir, "addr")
+	srv := start(t, "serve", sw, "--store", store, "--token-file", tok, "--listen", "127.0.0.1:0", "--address-file", addrFile, "--lease", "4s")
+	var ws []*proc
+	for i := 0; i < 3; i++ {
+		ws = append(ws, start(t, "work", "--address-file", addrFile, "--token-file", tok, "--threads", "1", "--wait", "30s"))
+	}
+	for i, w := range ws {
+		if code := w.wait(t, 3*time.Minute); code != 0 {
+			t.Fatalf("worker %d exit %d: %s", i, code, w.err.String())
+		}
+	}
+	if code := srv.wait(t, time.Minute); code != 0 {
+		t.Fatalf("serve exit %d: %s", code, srv.err.String())
+	}
+	if !strings.Contains(srv.out.String(), "complete") {
+		t.Fatalf("serve did not report completion:\n%s", srv.out.String())
+	}
+	if got := storeDigest(t, store); got != want {
+		t.Fatalf("coordinated run %s differs from local run %s", got, want)
+	}
+
+	var shards []string
+	for i := 0; i < 3; i++ {
+		p := filepath.Join(dir, fmt.Sprintf("shard%d.db", i))
+		if code, _, errs := runCLI(t, "run", sw, "--shard", fmt.Sprintf("%d/3", i), "--store", p); code != 0 {
+			t.Fatalf("shard %d: exit %d: %s", i, code, errs)
+		}
+		shards = append(shards, p)
+	}
+	merged := filepath.Join(dir, "merged.db")
+	if code, _, errs := runCLI(t, append([]string{"merge", "--out", merged}, shards...)...); code != 0 {
+		t.Fatalf("merge: %s", errs)
+	}
+	if got := storeDigest(t, merged); got != want {
+		t.Fatalf("merged shards %s differ from local run %s", got, want)
+	}
+}
+
+// kill -9 of a worker in the middle of a task: its lease expires, another worker
+// finishes the sweep, and the result is the same.
+func TestProcessKillWorker(t *testing.T) {
+	want := localRun(t)
+	dir, sw, tok := setup(t)
+	store := filepath.Join(dir, "s.db")
+	addr := freePort(t)
+	srv := start(t, "serve", sw, "--store", store, "--token-file", tok, "--listen", addr, "--lease", "2s")
+	victim := start(t, "work", "--coordinator", addr, "--token-file", tok, "--threads", "2", "--wait", "30s")
+	until(t, time.Minute, "a leased task", func() bool { return leased(status(t, addr, tok)) > 0 })
+	victim.cmd.Process.Signal(syscall.SIGKILL)
+	<-victim.done
+	rescuer := start(t, "work", "--coordinator", addr, "--token-file", tok, "--threads", "2", "--wait", "30s")
+	if code := rescuer.wait(t, 3*time.Minute); code != 0 {
+		t.Fatalf("worker exit %d: %s", code, rescuer.err.String())
+	}
+	if code := srv.wait(t, time.Minute); code != 0 {
+		t.Fatalf("serve exit %d: %s", code, srv.err.String())
+	}
+	if got := storeDigest(t, store); got != want {
+		t.Fatal("result after a killed worker differs from the local run")
+	}
+}
+
+// kill -9 of the coordinator in the middle of the sweep, then a restart on the same
+// store and address: the worker reconnects, the sweep completes, nothing is counted
+// twice and the result is the same.
+func TestProcessKillCoordinator(t *testing.T) {
+	want := localRun(t)
+	dir, sw, tok := setup(t)
+	store := filepath.Join(dir, "s.db")
+	addr := freePort(t)
+	srv := start(t, "serve", sw, "--store", store, "--token-file", tok, "--listen", addr, "--lease", "3s")
+	w := start(t, "work", "--coordinator", addr, "--token-file", tok, "--threads", "1", "--wait", "60s")
+	until(t, 2*time.Minute, "a committed task", func() bool {
+		s := status(t, addr, tok)
+		return s != nil && s.Completions >= 1
+	})
+	srv.cmd.Process.Signal(syscall.SIGKILL)
+	<-srv.done
+	if s := status(t, addr, tok); s != nil {
+		t.Fatal("coordinator still answers after kill -9")
+	}
+	srv2 := start(t, "serve", sw, "--store", store, "--token-file", tok, "--listen", addr, "--lease", "3s")
+	if code := w.wait(t, 3*time.Minute); code != 0 {
+		t.Fatalf("worker exit %d: %s", code, w.err.String())
+	}
+	if code := srv2.wait(t, time.Minute); code != 0 {
+		t.Fatalf("restarted serve exit %d: %s", code, srv2.err.String())
+	}
+	if !strings.Contains(srv2.out.String(), "10000/10000") && !strings.Contains(srv2.out.String(), "20000/20000") {
+		t.Fatalf("restarted coordinator does not report every replicate once:\n%s", srv2.out.String())
+	}
+	if got := storeDigest(t, store); got != want {
+		t.Fatal("result after a coordinator restart differs from the local run")
+	}
+}
+
+// SIGTERM makes a worker hand back its leases and exit 0 within the grace period.
+func TestProcessWorkerSIGTERM(t *testing.T) {
+	dir, sw, tok := setup(t)
+	addr := freePort(t)
+	start(t, "serve", sw, "--store", filepath.Join(dir, "s.db"), "--token-file", tok, "--listen", addr, "--lease", "30s")
+	w := start(t, "work", "--coordinator", addr, "--token-file", tok, "--threads", "2", "--grace", "0s")
+	until(t, time.Minute, "a leased task", func() bool { return leased(status(t, addr, tok)) > 0 })
+	w.cmd.Process.Signal(syscall.SIGTERM)
+	if code := w.wait(t, 20*time.Second); code != 0 {
+		t.Fatalf("worker exit %d after SIGTERM: %s", code, w.err.String())
+	}
+	if !strings.Contains(w.out.String(), "handed back") {
+		t.Fatalf("worker did not report handing back: %s", w.out.String())
+	}
+	// The leases were handed back, not left to expire (the lease is 30 s).
+	until(t, 5*time.Second, "leases handed back", func() bool { return leased(status(t, addr, tok)) == 0 })
+}
+
+// Wrong or missing tokens are refused; TLS works with and without client certificates,
+// and a worker without the required client certificate cannot take part.
+func TestProcessTokenAndTLS(t *testing.T) {
+	dir, sw, tok := setup(t)
+	sec := filepath.Join(dir, "sec")
+	if code, _, errs := runCLI(t, "secrets", "init", sec); code != 0 {
+		t.Fatalf("secrets init: %s", errs)
+	}
+	p := func(n string) string { return filepath.Join(sec, n) }
+
+	// Plain transport, wrong token: the worker fails at once (exit 1, Unauthenticated).
+	addr := freePort(t)
+	srv := start(t, "serve", sw, "--store", filepath.Join(dir, "a.db"), "--token-file", tok, "--listen", addr)
+	wrong := filepath.Join(dir, "wrong")
+	os.WriteFile(wrong, []byte("not-the-right-token-at-all\n"), 0o600)
+	w := start(t, "work", "--coordinator", addr, "--token-file", wrong, "--wait", "20s")
+	if code := w.wait(t, 20*time.Second); code != 1 || !strings.Contains(w.err.String(), "token") {
+		t.Fatalf("wrong token: exit %d: %s", code, w.err.String())
+	}
+	until(t, 10*time.Second, "coordinator up", func() bool { return status(t, addr, tok) != nil })
+	srv.cmd.Process.Kill()
+	<-srv.done
+
+	// TLS with required client certificates.
+	addr = freePort(t)
+	store := filepath.Join(dir, "tls.db")
+	srv = start(t, "serve", sw, "--store", store, "--token-file", p("token"), "--listen", addr,
+		"--tls-cert", p("server.crt"), "--tls-key", p("server.key"), "--client-ca", p("ca.crt"))
+	noCert := start(t, "work", "--coordinator", addr, "--token-file", p("token"), "--tls-ca", p("ca.crt"), "--wait", "2s")
+	if code := noCert.wait(t, 30*time.Second); code == 0 {
+		t.Fatal("a worker without a client certificate took part in an mTLS sweep")
+	}
+	plain := start(t, "work", "--coordinator", addr, "--token-file", p("token"), "--wait", "2s")
+	if code := plain.wait(t, 30*time.Second); code == 0 {
+		t.Fatal("a plaintext worker took part in a TLS sweep")
+	}
+	good := start(t, "work", "--coordinator", addr, "--token-file", p("token"), "--tls-ca", p("ca.crt"),
+		"--tls-cert", p("client.crt"), "--tls-key", p("client.key"), "--threads", "2")
+	if code := good.wait(t, 3*time.Minute); code != 0 {
+		t.Fatalf("mTLS worker exit %d: %s", code, good.err.String())
+	}
+	if code := srv.wait(t, time.Minute); code != 0 {
+		t.Fatalf("serve: %s", srv.err.String())
+	}
+
+	// TLS without client certificates: server-authenticated only.
+	addr = freePort(t)
+	srv = start(t, "serve", sw, "--store", filepath.Join(dir, "tls2.db"), "--token-file", p("token"), "--listen", addr,
+		"--tls-cert", p("server.crt"), "--tls-key", p("server.key"))
+	good = start(t, "work", "--coordinator", addr, "--token-file", p("token"), "--tls-ca", p("ca.crt"), "--threads", "2")
+	if code := good.wait(t, 3*time.Minute); code != 0 {
+		t.Fatalf("TLS worker exit %d: %s", code, good.err.String())
+	}
+	if code := srv.wait(t, time.Minute); code != 0 {
+		t.Fatalf("serve: %s", srv.err.String())
+	}
+	if storeDigest(t, filepath.Join(dir, "tls2.db")) != storeDigest(t, store) {
+		t.Fatal("TLS runs differ")
+	}
+}
+
+// Bad flags of the sweep commands are usage errors (exit 2) with one line.
+func TestSweepCommandsBadInput(t *testing.T) {
+	_, sw, tok := setup(t)
+	cases := [][]string{
+		{"run"},
+		{"run", sw, "--shard", "3/3"},
+		{"run", sw, "--shard", "x"},
+		{"run", sw, "--threads", "0"},
+		{"run", filepath.Join(t.TempDir(), "missing.toml")},
+		{"serve", sw, "--token-file", tok},
+		{"serve", sw, "--store", "x.db"},
+		{"serve", sw, "--store", "x.db", "--token-file", tok, "--lease", "1ms"},
+		{"serve", sw, "--store", "x.db", "--token-file", tok, "--client-ca", tok},
+		{"work", "--token-file", tok},
+		{"work", "--coordinator", "a:1", "--address-file", "f", "--token-file", tok},
+		{"work", "--coordinator", "a:1", "--token-file", tok, "--threads", "-1"},
+		{"status"},
+	}
+	for _, c := range cases {
+		code, _, errs := runCLI(t, c...)
+		if code != 2 || strings.Count(strings.TrimSpace(errs), "\n") != 0 {
+			t.Errorf("%v: exit %d, stderr %q; want exit 2 and one line", c, code, errs)
+		}
+	}
+	short := filepath.Join(t.TempDir(), "short")
+	os.WriteFile(short, []byte("abc\n"), 0o600)
+	if code, _, errs := runCLI(t, "serve", sw, "--store", "x.db", "--token-file", short); code != 2 || !strings.Contains(errs, "16") {
+		t.Errorf("short token: exit %d %s", code, errs)
+	}
+}
