@@ -7,14 +7,21 @@ import (
 	"strings"
 
 	"bbmx/results"
+	"bbmx/results/report"
 )
 
-// finalReport writes the report of a finished sweep and prints its headline table.
+// finalReport writes the report of a finished sweep (default folder: beside the store,
+// <store>-report) and prints its headline table.
 func finalReport(st *results.Store, storePath, dir string, stdout, stderr io.Writer) error {
 	if dir == "" {
 		dir = strings.TrimSuffix(storePath, filepath.Ext(storePath)) + "-report"
 	}
-	_ = st
-	fmt.Fprintf(stdout, "report: run 'bbmx report %s --out %s'\n", storePath, dir)
+	fmt.Fprintf(stderr, "fitting and writing the report to %s ...\n", dir)
+	rep, err := report.Write(st, dir, report.Options{})
+	if err != nil {
+		return fmt.Errorf("the sweep is complete and stored, but the report failed: %w (retry with 'bbmx report %s --out DIR')", err, storePath)
+	}
+	fmt.Fprintln(stdout)
+	fmt.Fprint(stdout, rep.Headline())
 	return nil
 }
