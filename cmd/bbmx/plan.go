@@ -77,6 +77,12 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 			"figures are estimates from the cost model, not measurements. A sweep above about\n"+
 			fmt.Sprintf("%.0f CPU-hours (%.0g tree nodes) is refused (exit status 2) unless --force is given:\n", engine.AbsurdSweepNodes*engine.NominalNodeSeconds/3600, engine.AbsurdSweepNodes)+
 			"the cost grows like e^{gT}, so a mistyped horizon shows up here.\n\n"+
+			"The file (TOML; defaults in brackets): seed (required), name, task_seconds [60],\n"+
+			"keep_records [true], split_at [0: automatic]; [model] sigma [1], beta [1], children [2];\n"+
+			"[grid] dims, horizons, replicates (required), and [[grid.override]] tables of dim,\n"+
+			"horizon, replicates for single cells; [observe] top_k [32], window [8], bin_width [0.05],\n"+
+			"checkpoints [none], directions [16], lambda [theta/2]. examples/quick.toml and\n"+
+			"examples/cluster.toml show every key.\n\n"+
 			"Example: bbmx plan examples/quick.toml; then bbmx run examples/quick.toml")
 	cores := fs.Int("cores", 100, "cores for the wall-time estimate")
 	asJSON := fs.Bool("json", false, "print the plan as one JSON object")

@@ -157,3 +157,11 @@ func TestExamples(t *testing.T) {
 		t.Fatal("cluster.toml was meant to exercise split replicates")
 	}
 }
+
+// A name that is not UTF-8 cannot come from a TOML file, but can from a damaged store.
+func TestDecodeRefusesBadName(t *testing.T) {
+	good := string(mustParse(t, base, "b.toml").Canonical())
+	if _, err := Decode([]byte(strings.Replace(good, `"name":"test"`, "\"name\":\"te\\u0007st\"", 1))); err == nil || !strings.Contains(err.Error(), "key name") {
+		t.Fatalf("control character in name: %v", err)
+	}
+}

@@ -6,6 +6,7 @@ import (
 	"slices"
 	"strings"
 	"unicode"
+	"unicode/utf8"
 
 	"bbmx/engine"
 )
@@ -23,7 +24,7 @@ func (s *Sweep) normalize() *fieldError {
 	if len(s.Name) > MaxNameBytes {
 		return errAt("name", "is %d bytes long; at most %d", len(s.Name), MaxNameBytes)
 	}
-	if strings.ContainsFunc(s.Name, unicode.IsControl) {
+	if !utf8.ValidString(s.Name) || strings.ContainsFunc(s.Name, unicode.IsControl) {
 		return errAt("name", "must be one line of printable text, got %q", s.Name)
 	}
 	// The model, one parameter at a time so the error names its key.
