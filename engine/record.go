@@ -227,11 +227,23 @@ func DecodeRecord(b []byte) (Record, []byte, error) {
 	rec.Dim = int(r.uvarint(64))
 	rec.Population = r.uvarint(math.MaxUint64)
 	nTop := r.uvarint(MaxTopK)
+	var dirs []float64
 	if r.err == nil && rec.Dim < 1 {
 		r.err = ErrCorruptRecord
 	}
+	if r.err == nil && nTop > 0 {
+		// One allocation for the points and one for all their directions; capped by what
+		// the remaining bytes can hold, so a corrupt count cannot make it large.
+		n := min(nTop, uint64(len(r.b))/uint64(8*(rec.Dim+1))+1)
+		rec.Top = make([]Point, 0, n)
+		dirs = make([]float64, 0, n*uint64(rec.Dim))
+	}
 	for i := uint64(0); i < nTop && r.err == nil; i++ {
-		p := Point{Radius: r.f64(), Dir: make([]float64, rec.Dim)}
+		if len(dirs)+rec.Dim > cap(dirs) {
+			dirs = make([]float64, 0, rec.Dim)
+		}
+		dirs = dirs[:len(dirs)+rec.Dim]
+		p := Point{Radius: r.f64(), Dir: dirs[len(dirs)-rec.Dim : len(dirs) : len(dirs)]}
 		for j := range p.Dir {
 			p.Dir[j] = r.f64()
 		}
@@ -250,6 +262,9 @@ func DecodeRecord(b []byte) (Record, []byte, error) {
 	for i := uint64(0); i < nc && r.err == nil; i++ {
 		c := CheckpointStats{Time: r.f64(), Population: r.uvarint(math.MaxUint64), Z: r.f64(), W: r.f64()}
 		nd := r.uvarint(MaxDirections)
+		if r.err == nil && nd > 0 {
+			c.ZDir = make([]float64, 0, min(nd, uint64(len(r.b))/8+1))
+		}
 		for j := uint64(0); j < nd && r.err == nil; j++ {
 			c.ZDir = append(c.ZDir, r.f64())
 		}

@@ -8,6 +8,7 @@ import (
 	"os"
 	"sort"
 	"strings"
+	"time"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -44,6 +45,11 @@ func (e *MergeError) Error() string {
 // overlaps kept once, differing overlaps refused with a report. The output's sketches
 // are rebuilt from the merged records, so they do not depend on the order of inputs.
 // The provenance bucket records which input gave which replicate ranges.
+//
+// The merge streams: each cell's records are read from all inputs at once with cursors,
+// in key order, so memory is bounded by one write batch, not by the stores' size. A
+// first pass over the records finds conflicts before anything is written; the second
+// writes the union.
 func MergeStores(out string, inputs []string) error {
 	if len(inputs) == 0 {
 		return fmt.Errorf("no input stores")
@@ -65,11 +71,10 @@ func MergeStores(out string, inputs []string) error {
 	if err != nil {
 		return err
 	}
-	// First pass: settings agree, and find conflicts, before anything is written.
+	// Settings agree and every cell holds records, before anything is read in bulk.
 	cells := map[string]engine.Cell{}
 	cellJSON := map[string][]byte{}
-	seen := map[string]map[[16]byte]origin{}
-	var conflicts []Conflict
+	holders := map[string][]int{} // cell id -> inputs holding it, in input order
 	for i, s := range srcs {
 		ids, err := s.Cells()
 		if err != nil {
@@ -95,36 +100,38 @@ func MergeStores(out string, inputs []string) error {
 				return fmt.Errorf("%s: cell %s holds no per-replicate records, which merging needs to check overlaps", inputs[i], id)
 			}
 			cellJSON[id], cells[id] = cj, c
-			if seen[id] == nil {
-				seen[id] = map[[16]byte]origin{}
+			holders[id] = append(holders[id], i)
+		}
+	}
+	ids := make([]string, 0, len(cells))
+	for id := range cells {
+		ids = append(ids, id)
+	}
+	sort.Strings(ids)
+	// First pass: every replicate held by several inputs must be the same record in all.
+	var conflicts []Conflict
+	for _, id := range ids {
+		err := walkRecords(srcs, holders[id], id, func(k []byte, vals [][]byte, first int) error {
+			for j, v := range vals {
+				if v != nil && j != first && !bytes.Equal(v, vals[first]) {
+					conflicts = append(conflicts, Conflict{CellID: id, Seed: binary.BigEndian.Uint64(k), Rep: binary.BigEndian.Uint64(k[8:]),
+						Inputs: [2]string{inputs[holders[id][first]], inputs[holders[id][j]]}})
+				}
 			}
-			err = s.db.View(func(tx *bolt.Tx) error {
-				return tx.Bucket(bucketCells).Bucket([]byte(id)).Bucket(keyRecords).ForEach(func(k, v []byte) error {
-					var kk [16]byte
-					copy(kk[:], k)
-					if o, ok := seen[id][kk]; ok {
-						if !bytes.Equal(o.data, v) {
-							conflicts = append(conflicts, Conflict{CellID: id, Seed: binary.BigEndian.Uint64(k), Rep: binary.BigEndian.Uint64(k[8:]), Inputs: [2]string{inputs[o.input], inputs[i]}})
-						}
-						return nil
-					}
-					seen[id][kk] = origin{i, bytes.Clone(v)}
-					return nil
-				})
-			})
-			if err != nil {
-				return err
-			}
+			return nil
+		})
+		if err != nil {
+			return err
 		}
 	}
 	if len(conflicts) > 0 {
 		return &MergeError{Conflicts: conflicts}
 	}
-	dst, err := Create(out, spec)
+	dst, err := createForMerge(out, spec, srcs)
 	if err != nil {
 		return err
 	}
-	if err := writeMerged(dst, inputs, cells, seen); err != nil {
+	if err := writeMerged(dst, srcs, inputs, ids, holders, cells); err != nil {
 		dst.Close()
 		os.Remove(out)
 		return err
@@ -132,60 +139,195 @@ func MergeStores(out string, inputs []string) error {
 	return dst.Close()
 }
 
-// origin is where a replicate's record came from during a merge.
-type origin struct {
-	input int
-	data  []byte
+// createForMerge creates the output store and reopens it with a memory map as large as
+// the inputs together (an upper bound of the output), so bbolt does not remap, and copy
+// every dirty page, each time the growing file outgrows the map.
+func createForMerge(out string, spec []byte, srcs []*Store) (*Store, error) {
+	dst, err := Create(out, spec)
+	if err != nil {
+		return nil, err
+	}
+	if err := dst.Close(); err != nil {
+		os.Remove(out)
+		return nil, err
+	}
+	var total int64
+	for _, s := range srcs {
+		if fi, err := os.Stat(s.path); err == nil {
+			total += fi.Size()
+		}
+	}
+	db, err := bolt.Open(out, 0o644, &bolt.Options{Timeout: 2 * time.Second, InitialMmapSize: int(min(total+total/8, 1<<40))})
+	if err != nil {
+		os.Remove(out)
+		return nil, fmt.Errorf("create %s: %w", out, err)
+	}
+	return &Store{db: db, path: out}, nil
+}
+
+// walkRecords visits, in key order, every record key of cell id held by the inputs
+// srcs[which[j]], calling fn with the key, the value from each of those inputs (nil
+// where absent) and the first j holding it. Keys and values are valid only during fn.
+func walkRecords(srcs []*Store, which []int, id string, fn func(k []byte, vals [][]byte, first int) error) error {
+	txs := make([]*bolt.Tx, 0, len(which))
+	defer func() {
+		for _, tx := range txs {
+			tx.Rollback()
+		}
+	}()
+	curs := make([]*bolt.Cursor, len(which))
+	keys := make([][]byte, len(which))
+	vals := make([][]byte, len(which))
+	for j, i := range which {
+		tx, err := srcs[i].db.Begin(false)
+		if err != nil {
+			return err
+		}
+		txs = append(txs, tx)
+		curs[j] = tx.Bucket(bucketCells).Bucket([]byte(id)).Bucket(keyRecords).Cursor()
+		keys[j], vals[j] = curs[j].First()
+	}
+	at := make([][]byte, len(which))
+	for {
+		var min []byte
+		for _, k := range keys {
+			if k != nil && (min == nil || bytes.Compare(k, min) < 0) {
+				min = k
+			}
+		}
+		if min == nil {
+			return nil
+		}
+		first := -1
+		for j, k := range keys {
+			at[j] = nil
+			if k != nil && bytes.Equal(k, min) {
+				at[j] = vals[j]
+				if first < 0 {
+					first = j
+				}
+			}
+		}
+		if len(min) != 16 {
+			return fmt.Errorf("cell %s: corrupt record key %x", id, min)
+		}
+		if err := fn(min, at, first); err != nil {
+			return err
+		}
+		for j := range keys {
+			if at[j] != nil {
+				keys[j], vals[j] = curs[j].Next()
+			}
+		}
+	}
 }
 
 var bucketProvenance = []byte("provenance")
 
-// writeMerged writes every record into dst in (cell, seed, replicate) order, in runs of
-// consecutive replicates, committing in batches; the sketches follow from the records.
-func writeMerged(dst *Store, inputs []string, cells map[string]engine.Cell, seen map[string]map[[16]byte]origin) error {
-	ids := make([]string, 0, len(cells))
-	for id := range cells {
-		ids = append(ids, id)
-	}
-	sort.Strings(ids)
+// mergeBatchBytes bounds the record bytes written per transaction of a merge (a
+// variable so tests can make batches small and cross their boundaries).
+var mergeBatchBytes = 32 << 20
+
+// runRecords is how many consecutive decoded records are added to a sketch at once.
+const runRecords = 4096
+
+// writeMerged writes every record into dst in (cell, seed, replicate) order, committing in
+// batches of about mergeBatchBytes; each cell's sketch is built from its records as they
+// stream past and written with the cell's last batch.
+func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[string][]int, cells map[string]engine.Cell) error {
 	prov := map[string]map[string][]Range{} // input -> cell -> ranges
-	const batchRecords = 20000
-	var batch []TaskResult
-	pending := 0
-	flush := func() error {
-		if len(batch) == 0 {
+	// dst.db.NoSync: the batches are not synced one by one; the file is synced once at the
+	// end. A crash mid-merge leaves an unusable output either way (the caller merges again);
+	// the inputs are only read.
+	dst.db.NoSync = true
+	defer func() { dst.db.NoSync = false }()
+	for _, id := range ids {
+		c := cells[id].WithDefaults()
+		cj, _ := json.Marshal(c)
+		sk := NewSketch(c)
+		var (
+			keys, vals []byte // the pending batch: 16-byte keys and concatenated values
+			ends       []int  // end of each value in vals
+			run        []engine.Record
+			runSeed    uint64
+			written    int
+		)
+		addRun := func() error {
+			if len(run) == 0 {
+				return nil
+			}
+			if err := sk.AddRecords(c, runSeed, run[0].Replicate, run); err != nil {
+				return fmt.Errorf("cell %s: %w", id, err)
+			}
+			run = run[:0]
 			return nil
 		}
-		err := dst.Commit(batch, nil)
-		batch, pending = nil, 0
-		return err
-	}
-	for _, id := range ids {
-		c := cells[id]
-		cur := -1 // index in batch of the run being filled
-		for _, k := range keysSorted(seen[id]) {
-			o := seen[id][k]
-			seed, rep := binary.BigEndian.Uint64(k[:8]), binary.BigEndian.Uint64(k[8:])
-			rec, _, err := engine.DecodeRecord(o.data)
-			if err != nil {
-				return fmt.Errorf("%s: cell %s replicate %d: %w", inputs[o.input], id, rep, err)
-			}
-			if pending >= batchRecords {
-				if err := flush(); err != nil {
+		flush := func(last bool) error {
+			if last {
+				if err := addRun(); err != nil {
 					return err
 				}
-				cur = -1
 			}
-			if cur < 0 || batch[cur].Seed != seed || batch[cur].From+uint64(len(batch[cur].Records)) != rep {
-				batch = append(batch, TaskResult{CellID: id, Cell: c, Seed: seed, From: rep, KeepRecords: true})
-				cur = len(batch) - 1
+			err := dst.db.Update(func(tx *bolt.Tx) error {
+				cb, err := tx.Bucket(bucketCells).CreateBucketIfNotExists([]byte(id))
+				if err != nil {
+					return err
+				}
+				rb, err := cb.CreateBucketIfNotExists(keyRecords)
+				if err != nil {
+					return err
+				}
+				// Keys arrive in increasing order: full pages instead of half-full splits.
+				rb.FillPercent = 1
+				start := 0
+				for n, end := range ends {
+					if err := rb.Put(keys[16*n:16*n+16], vals[start:end]); err != nil {
+						return err
+					}
+					start = end
+				}
+				if !last {
+					return nil
+				}
+				if err := cb.Put([]byte("cell"), cj); err != nil {
+					return err
+				}
+				return cb.Put([]byte("sketch"), sk.AppendBinary(nil))
+			})
+			keys, vals, ends = keys[:0], vals[:0], ends[:0]
+			return err
+		}
+		err := walkRecords(srcs, holders[id], id, func(k []byte, vs [][]byte, first int) error {
+			in := inputs[holders[id][first]]
+			v := vs[first]
+			seed, rep := binary.BigEndian.Uint64(k[:8]), binary.BigEndian.Uint64(k[8:])
+			rec, _, err := engine.DecodeRecord(v)
+			if err != nil {
+				return fmt.Errorf("%s: cell %s replicate %d: %w", in, id, rep, err)
 			}
-			batch[cur].Records = append(batch[cur].Records, rec)
-			pending++
-			pm := prov[inputs[o.input]]
+			if rec.Replicate != rep {
+				return fmt.Errorf("%s: cell %s: record under key %x is replicate %d", in, id, k, rec.Replicate)
+			}
+			if n := len(run); n > 0 && (runSeed != seed || run[n-1].Replicate+1 != rep || n == runRecords) {
+				if err := addRun(); err != nil {
+					return err
+				}
+			}
+			runSeed = seed
+			run = append(run, rec)
+			keys = append(keys, k...)
+			vals = append(vals, v...)
+			ends = append(ends, len(vals))
+			written++
+			if len(vals) >= mergeBatchBytes {
+				if err := flush(false); err != nil {
+					return err
+				}
+			}
+			pm := prov[in]
 			if pm == nil {
 				pm = map[string][]Range{}
-				prov[inputs[o.input]] = pm
+				prov[in] = pm
 			}
 			rs := pm[id]
 			if n := len(rs); n > 0 && rs[n-1].Seed == seed && rs[n-1].To == rep {
@@ -194,12 +336,18 @@ func writeMerged(dst *Store, inputs []string, cells map[string]engine.Cell, seen
 				rs = append(rs, Range{Seed: seed, From: rep, To: rep + 1})
 			}
 			pm[id] = rs
+			return nil
+		})
+		if err != nil {
+			return err
+		}
+		if written > 0 {
+			if err := flush(true); err != nil {
+				return err
+			}
 		}
 	}
-	if err := flush(); err != nil {
-		return err
-	}
-	return dst.db.Update(func(tx *bolt.Tx) error {
+	err := dst.db.Update(func(tx *bolt.Tx) error {
 		b, err := tx.CreateBucketIfNotExists(bucketProvenance)
 		if err != nil {
 			return err
@@ -212,6 +360,10 @@ func writeMerged(dst *Store, inputs []string, cells map[string]engine.Cell, seen
 		}
 		return nil
 	})
+	if err != nil {
+		return err
+	}
+	return dst.db.Sync()
 }
 
 // Provenance returns, for a merged store, which input gave which replicate ranges per cell.
@@ -232,14 +384,4 @@ func (s *Store) Provenance() (map[string]map[string][]Range, error) {
 		})
 	})
 	return out, err
-}
-
-// keysSorted returns the map's keys in byte order: (seed, replicate) big endian.
-func keysSorted[V any](m map[[16]byte]V) [][16]byte {
-	ks := make([][16]byte, 0, len(m))
-	for k := range m {
-		ks = append(ks, k)
-	}
-	sort.Slice(ks, func(i, j int) bool { return bytes.Compare(ks[i][:], ks[j][:]) < 0 })
-	return ks
 }

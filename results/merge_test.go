@@ -35,6 +35,20 @@ func sketchBytes(t *testing.T, path string) []byte {
 	return sk.AppendBinary(nil)
 }
 
+func contentDigest(t *testing.T, path string) [32]byte {
+	t.Helper()
+	st, err := Open(path, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	d, err := st.ContentDigest()
+	if err != nil {
+		t.Fatal(err)
+	}
+	return d
+}
+
 func TestMergeUnionsOverlapsAndOrder(t *testing.T) {
 	dir := t.TempDir()
 	a, b, c, whole := filepath.Join(dir, "a.db"), filepath.Join(dir, "b.db"), filepath.Join(dir, "c.db"), filepath.Join(dir, "whole.db")
@@ -60,6 +74,10 @@ func TestMergeUnionsOverlapsAndOrder(t *testing.T) {
 	}
 	if !bytes.Equal(sketchBytes(t, only), sketchBytes(t, whole)) {
 		t.Fatal("merged halves differ from the whole")
+	}
+	// and so does everything else the store holds: cell settings, sketch, every record
+	if dOnly, dWhole := contentDigest(t, only), contentDigest(t, whole); dOnly != dWhole {
+		t.Fatalf("merged halves hold other content than the whole: %x vs %x", dOnly, dWhole)
 	}
 	if after, _ := os.Stat(a); after.ModTime() != aInfo.ModTime() || after.Size() != aInfo.Size() {
 		t.Fatal("an input was modified")
