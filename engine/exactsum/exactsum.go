@@ -16,6 +16,7 @@ import (
 	"errors"
 	"math"
 	"math/big"
+	"math/bits"
 )
 
 const (
@@ -135,18 +136,81 @@ func (a *Acc) Float64() float64 {
 	}
 	c := *a
 	c.Normalise()
-	n := new(big.Int).SetInt64(c.limb[nLimbs-1])
-	for i := nLimbs - 2; i >= 0; i-- {
-		n.Lsh(n, limbBits)
-		n.Or(n, big.NewInt(c.limb[i]))
+	neg := c.limb[nLimbs-1] < 0
+	if neg { // work with the magnitude
+		for i := range c.limb {
+			c.limb[i] = -c.limb[i]
+		}
+		c.Normalise()
 	}
-	if n.Sign() == 0 {
+	h := nLimbs - 1
+	for h >= 0 && c.limb[h] == 0 {
+		h--
+	}
+	if h < 0 {
 		return 0
 	}
-	f := new(big.Float).SetPrec(2200).SetInt(n)
-	f.SetMantExp(f, -bias)
+	// Only the top three limbs (at least 65 significant bits) and whether anything below
+	// them is nonzero (a sticky bit) decide the rounding to 53 bits, so the conversion
+	// costs the same for every sum.
+	if h >= 4 && h < nLimbs-1 && c.limb[h] < 1<<limbBits {
+		v := roundNormal(&c, h)
+		if neg {
+			v = -v
+		}
+		return v
+	}
+	lo := max(h-2, 0)
+	m := new(big.Int).SetUint64(uint64(c.limb[h]))
+	var limb big.Int
+	for i := h - 1; i >= lo; i-- {
+		m.Lsh(m, limbBits)
+		m.Or(m, limb.SetUint64(uint64(c.limb[i])))
+	}
+	exp := lo*limbBits - bias
+	for i := 0; i < lo; i++ {
+		if c.limb[i] != 0 {
+			m.Lsh(m, 1)
+			m.SetBit(m, 0, 1)
+			exp--
+			break
+		}
+	}
+	f := new(big.Float).SetPrec(uint(m.BitLen()) + 1).SetInt(m)
+	f.SetMantExp(f, exp)
 	v, _ := f.Float64()
+	if neg {
+		v = -v
+	}
 	return v
+}
+
+// roundNormal rounds the magnitude held in limbs 0..h (top limb h nonzero and below
+// 2^32, 4 <= h < nLimbs-1, so the result is a normal number or +Inf) to the nearest
+// float64, ties to even, with integer arithmetic only.
+func roundNormal(c *Acc, h int) float64 {
+	hi := uint64(c.limb[h])
+	lo := uint64(c.limb[h-1])<<limbBits | uint64(c.limb[h-2])
+	sticky := false
+	for i := 0; i < h-2; i++ {
+		if c.limb[i] != 0 {
+			sticky = true
+			break
+		}
+	}
+	// The 96-bit value hi:lo has its leading bit at 64 + len(hi) - 1; keep 53 bits.
+	s := uint(64 + bits.Len64(hi) - 53) // 12 <= s <= 43
+	mant := hi<<(64-s) | lo>>s
+	rem := lo & (1<<s - 1)
+	half := uint64(1) << (s - 1)
+	if rem > half || (rem == half && (sticky || mant&1 == 1)) {
+		mant++
+		if mant == 1<<53 {
+			mant >>= 1
+			s++
+		}
+	}
+	return math.Ldexp(float64(mant), (h-2)*limbBits-bias+int(s))
 }
 
 // AppendBinary appends a canonical encoding of the sum: equal sums encode to equal bytes.

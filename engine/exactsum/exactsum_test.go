@@ -129,3 +129,30 @@ func BenchmarkAdd(b *testing.B) {
 		x *= 1.0000001
 	}
 }
+
+// Rounding decided by bits far below the top three limbs (the sticky bit), ties to
+// even, and signs: the expected values follow from IEEE 754 round-to-nearest-even
+// (derived by hand).
+func TestFloat64StickyAndTies(t *testing.T) {
+	cases := []struct {
+		xs   []float64
+		want float64
+	}{
+		{[]float64{1, 0x1p-53}, 1},                               // exact tie: to even
+		{[]float64{1, 0x1p-53, 0x1p-1000}, 1 + 0x1p-52},          // just above the tie
+		{[]float64{1, 0x1p-53, -0x1p-1000}, 1},                   // just below the tie
+		{[]float64{-1, -0x1p-53, -0x1p-1070}, -(1 + 0x1p-52)},    // negative, above the tie
+		{[]float64{1 + 0x1p-52, 0x1p-53}, 1 + 0x1p-51},           // tie, odd: rounds up
+		{[]float64{0x1p-1074, 0x1p-1074, -0x1p-1074}, 0x1p-1074}, // subnormal
+		{[]float64{math.MaxFloat64, -math.MaxFloat64, 3}, 3},
+	}
+	for i, c := range cases {
+		var a Acc
+		for _, x := range c.xs {
+			a.Add(x)
+		}
+		if got := a.Float64(); got != c.want {
+			t.Errorf("case %d: got %v, want %v", i, got, c.want)
+		}
+	}
+}
