@@ -5,6 +5,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"sort"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -232,7 +233,7 @@ func (c *Coordinator) commitBatch(batch []*commitReq) error {
 			trs = append(trs, *cr.result)
 		}
 	}
-	return c.store.Commit(trs, func(tx *bolt.Tx) error {
+	return c.store.Commit(coalesce(trs), func(tx *bolt.Tx) error {
 		done, err := coordBucket(tx, keyDone)
 		if err != nil {
 			return err
@@ -284,6 +285,34 @@ func (c *Coordinator) commitBatch(batch []*commitReq) error {
 		}
 		return nil
 	})
+}
+
+// coalesce joins the results of a batch that continue each other (same cell, the next
+// replicates) into one result, so the store reads, merges and writes each cell's
+// sketch once per run of adjacent replicates rather than once per task. The sketch's
+// ranges join adjacent replicates anyway, and its counts and exact sums do not depend
+// on grouping, so the store ends up with the same bytes.
+func coalesce(trs []results.TaskResult) []results.TaskResult {
+	if len(trs) < 2 {
+		return trs
+	}
+	sort.SliceStable(trs, func(i, j int) bool {
+		if trs[i].CellID != trs[j].CellID {
+			return trs[i].CellID < trs[j].CellID
+		}
+		return trs[i].From < trs[j].From
+	})
+	out := trs[:1]
+	for _, r := range trs[1:] {
+		last := &out[len(out)-1]
+		if r.CellID == last.CellID && r.Seed == last.Seed && r.KeepRecords == last.KeepRecords &&
+			r.From == last.From+uint64(len(last.Records)) && len(last.Records) > 0 && len(r.Records) > 0 {
+			last.Records = append(last.Records[:len(last.Records):len(last.Records)], r.Records...)
+			continue
+		}
+		out = append(out, r)
+	}
+	return out
 }
 
 // Status reports progress per cell.
