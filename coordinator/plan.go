@@ -11,10 +11,6 @@ import (
 	"bbmx/results"
 )
 
-// maxResultBytes bounds one task's result message; tasks of cheap cells are capped in
-// replicates so their records fit (the gRPC limits are set above this).
-const maxResultBytes = 8 << 20
-
 // taskState is where a task is in its life: pending → leased → done, or parked after
 // too many failed attempts. A parked task can still be completed by a late result.
 type taskState uint8
@@ -70,20 +66,9 @@ func unitOf(cellID string, j uint64) uint64 {
 	return uint64(h.Sum32()) + j
 }
 
-// recordBytes estimates one record's encoding size for cell c.
-func recordBytes(c engine.Cell) int {
-	d := c.Model.Dim
-	checks := len(c.Observe.Checkpoints) * (32 + 8*c.NumDirections())
-	return 32 + c.Observe.TopK*8*(d+1) + 2*c.Bins() + checks
-}
-
-// perTask is the number of replicates per range task: the sweep's sizing, capped so a
-// task's records stay within maxResultBytes.
-func perTask(cs sweep.CellSpec, sz sweep.Sizing) uint64 {
-	n := max(sz.PerTask, 1)
-	limit := uint64(max(1, maxResultBytes/recordBytes(cs.Cell)))
-	return min(n, limit)
-}
+// perTask is the number of replicates per range task (the sweep's sizing already
+// bounds a task's records to engine.MaxTaskResultBytes).
+func perTask(sz sweep.Sizing) uint64 { return max(sz.PerTask, 1) }
 
 // missing returns the replicate ranges of [0, want) not in have (sorted, disjoint
 // ranges of one seed).
@@ -144,7 +129,7 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 	}
 	todo := missing(have, seed, cs.Replicates)
 	if sz.Parts <= 1 {
-		n := perTask(cs, sz)
+		n := perTask(sz)
 		for _, m := range todo {
 			for _, r := range cut(m[0], m[1], n) {
 				c.tasks = append(c.tasks, &task{id: fmt.Sprintf("%s/r%d-%d", cs.ID, r[0], r[1]), cell: c,

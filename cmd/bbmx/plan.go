@@ -138,7 +138,7 @@ func makePlan(sw *sweep.Sweep, path string, cores int) planSummary {
 	for _, c := range sw.Cells() {
 		z := sw.Size(c)
 		nodes := c.Cell.Model.ExpectedNodes(c.Cell.Horizon)
-		hours := float64(c.Replicates) * nodes * engine.NominalNodeSeconds / 3600
+		hours := float64(c.Replicates) * engine.NominalReplicateSeconds(c.Cell) / 3600
 		row := planCell{ID: c.ID, Dim: c.Cell.Model.Dim, Horizon: c.Cell.Horizon, Replicates: c.Replicates,
 			NodesPerRep: num(nodes), Tasks: sw.TaskCount(c), PartsPerRep: z.Parts, SplitAt: z.SplitAt,
 			CPUHours: num(hours), cpuHoursFinite: hours}

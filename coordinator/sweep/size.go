@@ -22,16 +22,16 @@ type Sizing struct {
 }
 
 // replicateSeconds is the cost model's CPU time of one replicate of c.
-func replicateSeconds(c CellSpec) float64 {
-	return c.Cell.Model.ExpectedNodes(c.Cell.Horizon) * engine.NominalNodeSeconds
-}
+func replicateSeconds(c CellSpec) float64 { return engine.NominalReplicateSeconds(c.Cell) }
 
 // Size cuts a cell into tasks of about TaskSeconds of one core each, by the cost model
-// (Model.ExpectedNodes(T) × engine.NominalNodeSeconds per replicate):
+// (engine.NominalReplicateSeconds: the expected nodes at the nominal cost per node, plus
+// the fixed work of a replicate and of its checkpoints):
 //
 //   - A replicate that fits in a task: PerTask = max(1, floor(TaskSeconds / cost)) whole
-//     replicates per task, Parts = 1. It does not depend on the cell's replicate count,
-//     so growing a sweep keeps task boundaries where they were.
+//     replicates per task, at most engine.MaxTaskResultBytes of records, Parts = 1. It
+//     does not depend on the cell's replicate count, so growing a sweep keeps task
+//     boundaries where they were.
 //   - A bigger one: Parts = ceil(cost / TaskSeconds), at most MaxParts; each replicate
 //     is cut at time SplitAt into subtrees rooted at the particles then alive, shared
 //     out among Parts tasks. SplitAt is the sweep's split_at if set; otherwise the
@@ -47,6 +47,8 @@ func (s *Sweep) Size(c CellSpec) Sizing {
 		if per > 1 {
 			n = uint64(min(per, 1<<62))
 		}
+		// A task's records must fit in one result message.
+		n = min(n, uint64(max(1, engine.MaxTaskResultBytes/engine.RecordBytes(c.Cell))))
 		return Sizing{PerTask: n, Parts: 1}
 	}
 	parts := MaxParts
@@ -84,8 +86,8 @@ func (s *Sweep) Estimate() Estimate {
 	var e Estimate
 	for _, c := range s.Cells() {
 		e.Nodes += float64(c.Replicates) * c.Cell.Model.ExpectedNodes(c.Cell.Horizon)
+		e.CPUSeconds += float64(c.Replicates) * replicateSeconds(c)
 	}
-	e.CPUSeconds = e.Nodes * engine.NominalNodeSeconds
 	e.Absurd = !(e.Nodes <= engine.AbsurdSweepNodes)
 	return e
 }
