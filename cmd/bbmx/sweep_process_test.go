@@ -9,7 +9,9 @@ import (
 	"bytes"
 	"context"
 	"fmt"
+	"io"
 	"net"
+	"net/http"
 	"os"
 	"os/exec"
 	"path/filepath"
@@ -19,6 +21,10 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"google.golang.org/grpc"
+	"google.golang.org/grpc/credentials/insecure"
+	healthpb "google.golang.org/grpc/health/grpc_health_v1"
 
 	pb "bbmx/proto/bbmx/v1"
 	"bbmx/worker"
@@ -108,12 +114,23 @@ func freePort(t *testing.T) string {
 	return ln.Addr().String()
 }
 
+// tinySweep is for tests that need a complete run but no time to kill anything.
+const tinySweep = `name = "tiny"
+seed = 6
+[grid]
+dims = [2]
+horizons = [3, 4]
+replicates = 300
+`
+
 // setup writes the sweep and a token into a fresh folder.
-func setup(t *testing.T) (dir, sweepFile, token string) {
+func setup(t *testing.T) (dir, sweepFile, token string) { return setupWith(t, processSweep) }
+
+func setupWith(t *testing.T, src string) (dir, sweepFile, token string) {
 	dir = t.TempDir()
 	sweepFile = filepath.Join(dir, "sweep.toml")
 	token = filepath.Join(dir, "token")
-	os.WriteFile(sweepFile, []byte(processSweep), 0o644)
+	os.WriteFile(sweepFile, []byte(src), 0o644)
 	os.WriteFile(token, []byte("process-test-token-0123456789\n"), 0o600)
 	return
 }
@@ -313,7 +330,7 @@ func TestProcessWorkerSIGTERM(t *testing.T) {
 // Wrong or missing tokens are refused; TLS works with and without client certificates,
 // and a worker without the required client certificate cannot take part.
 func TestProcessTokenAndTLS(t *testing.T) {
-	dir, sw, tok := setup(t)
+	dir, sw, tok := setupWith(t, tinySweep)
 	sec := filepath.Join(dir, "sec")
 	if code, _, errs := runCLI(t, "secrets", "init", sec); code != 0 {
 		t.Fatalf("secrets init: %s", errs)
@@ -399,5 +416,82 @@ func TestSweepCommandsBadInput(t *testing.T) {
 	os.WriteFile(short, []byte("abc\n"), 0o600)
 	if code, _, errs := runCLI(t, "serve", sw, "--store", "x.db", "--token-file", short); code != 2 || !strings.Contains(errs, "16") {
 		t.Errorf("short token: exit %d %s", code, errs)
+	}
+}
+
+// The coordinator serves Prometheus metrics and the standard gRPC health service (which
+// needs no token, for load balancers and probes), and with --keep-serving it answers
+// status after the sweep until SIGTERM.
+func TestProcessMetricsHealthKeepServing(t *testing.T) {
+	dir, sw, tok := setupWith(t, tinySweep)
+	addr, maddr := freePort(t), freePort(t)
+	srv := start(t, "serve", sw, "--store", filepath.Join(dir, "s.db"), "--token-file", tok, "--listen", addr,
+		"--metrics-listen", maddr, "--keep-serving")
+	w := start(t, "work", "--coordinator", addr, "--token-file", tok, "--threads", "2")
+	if code := w.wait(t, 2*time.Minute); code != 0 {
+		t.Fatalf("worker: %s", w.err.String())
+	}
+	until(t, 10*time.Second, "complete status", func() bool {
+		s := status(t, addr, tok)
+		return s != nil && s.Complete
+	})
+	resp, err := http.Get("http://" + maddr + "/metrics")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	for _, want := range []string{`bbmx_tasks{state="done"}`, "bbmx_task_completions_total", "bbmx_lease_expiries_total 0"} {
+		if !strings.Contains(string(body), want) {
+			t.Fatalf("metrics lack %q:\n%s", want, body)
+		}
+	}
+	conn, err := grpc.NewClient(addr, grpc.WithTransportCredentials(insecure.NewCredentials()))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer conn.Close()
+	ctx, cancel := context.WithTimeout(context.Background(), 5*time.Second)
+	defer cancel()
+	h, err := healthpb.NewHealthClient(conn).Check(ctx, &healthpb.HealthCheckRequest{})
+	if err != nil || h.Status != healthpb.HealthCheckResponse_SERVING {
+		t.Fatalf("health: %v %v", h, err)
+	}
+	select {
+	case <-srv.done:
+		t.Fatal("--keep-serving coordinator exited after the sweep")
+	default:
+	}
+	srv.cmd.Process.Signal(syscall.SIGTERM)
+	if code := srv.wait(t, 20*time.Second); code != 0 {
+		t.Fatalf("serve after SIGTERM: exit %d: %s", code, srv.err.String())
+	}
+}
+
+// bbmx run resumes from its store, bbmx status reads a store, and a changed seed is
+// refused with exit status 1 and the reason.
+func TestRunResumeStatusAndRefusal(t *testing.T) {
+	dir, sw, _ := setupWith(t, tinySweep)
+	store := filepath.Join(dir, "r.db")
+	if code, _, errs := runCLI(t, "run", sw, "--store", store, "--no-report"); code != 0 {
+		t.Fatalf("run: %s", errs)
+	}
+	first := storeDigest(t, store)
+	code, out, errs := runCLI(t, "run", sw, "--store", store, "--no-report")
+	if code != 0 || !strings.Contains(errs, "resuming") || !strings.Contains(out, ": 0 tasks") {
+		t.Fatalf("second run should resume and do nothing: exit %d\n%s\n%s", code, out, errs)
+	}
+	if storeDigest(t, store) != first {
+		t.Fatal("a resumed run changed a complete store")
+	}
+	code, out, _ = runCLI(t, "status", "--store", store)
+	if code != 0 || !strings.Contains(out, "complete, 600/600 replicates") {
+		t.Fatalf("status --store: exit %d\n%s", code, out)
+	}
+	other := filepath.Join(dir, "other.toml")
+	os.WriteFile(other, []byte(strings.Replace(tinySweep, "seed = 6", "seed = 7", 1)), 0o644)
+	code, _, errs = runCLI(t, "run", other, "--store", store, "--no-report")
+	if code != 1 || !strings.Contains(errs, "seed") {
+		t.Fatalf("another seed on the same store: exit %d: %s", code, errs)
 	}
 }
