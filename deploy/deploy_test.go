@@ -280,7 +280,7 @@ func glob(t *testing.T, pattern string) []string {
 func TestSchedulerScripts(t *testing.T) {
 	c := readCLI(t)
 	var files []string
-	for _, p := range []string{"slurm/*.sbatch", "slurm/*.sh", "slurm/test/*.sh", "pbs/*.pbs", "pbs/*.sh"} {
+	for _, p := range []string{"*.sh", "slurm/*.sbatch", "slurm/*.sh", "slurm/test/*.sh", "pbs/*.pbs", "pbs/*.sh"} {
 		files = append(files, glob(t, p)...)
 	}
 	for _, f := range files {
@@ -313,10 +313,31 @@ func TestSchedulerScripts(t *testing.T) {
 			t.Errorf("%s: no --signal directive: the job would be killed at the wall time without warning", f)
 		}
 	}
-	// submit.sh shows the cost estimate before submitting a sweep.
-	for _, f := range []string{"slurm/submit.sh", "pbs/submit.sh"} {
-		if !strings.Contains(readFile(t, f), `"$BBMX" plan "$BBMX_SWEEP"`) {
-			t.Errorf("%s: does not run bbmx plan before submitting", f)
+	// submit.sh shows the cost estimate (plan, from submit-common.sh) before it submits a
+	// sweep in every mode that starts one.
+	if !strings.Contains(readFile(t, "submit-common.sh"), `"$BBMX" plan "$BBMX_SWEEP"`) {
+		t.Error("submit-common.sh: plan does not run bbmx plan")
+	}
+	for f, submit := range map[string]string{"slurm/submit.sh": "sbatch_id", "pbs/submit.sh": "qsub_id"} {
+		text := readFile(t, f)
+		if !strings.Contains(text, `source "$here/../submit-common.sh"`) {
+			t.Errorf("%s: does not source submit-common.sh", f)
+		}
+		found := 0
+		for _, mode := range []string{"coordinated", "shards", "allocation"} {
+			_, body, ok := strings.Cut(text, "\n"+mode+")\n")
+			if !ok {
+				continue
+			}
+			found++
+			body, _, _ = strings.Cut(body, ";;")
+			p, s := strings.Index(body, "\tplan\n"), strings.Index(body, submit)
+			if p < 0 || s < 0 || p > s {
+				t.Errorf("%s: mode %s submits without showing the cost estimate first", f, mode)
+			}
+		}
+		if found < 2 {
+			t.Errorf("%s: found %d of the modes coordinated, shards, allocation", f, found)
 		}
 	}
 }

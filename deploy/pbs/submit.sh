@@ -16,17 +16,10 @@
 set -euo pipefail
 
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-export BBMX=${BBMX:-bbmx}
-export BBMX_DIR=${BBMX_DIR:-$PWD}
-export BBMX_SWEEP=${BBMX_SWEEP:-}
-export BBMX_SECRETS=${BBMX_SECRETS:-$BBMX_DIR/secrets}
+# shellcheck source=../submit-common.sh
+source "$here/../submit-common.sh"
 BBMX_QSUB_ARGS=${BBMX_QSUB_ARGS:-}
 BBMX_WALLTIME=${BBMX_WALLTIME:-}
-BBMX_YES=${BBMX_YES:-}
-BBMX_FORCE=${BBMX_FORCE:-}
-
-die() { echo "submit.sh: $*" >&2; exit 2; }
-usage() { awk 'NR > 1 && /^#/ { sub(/^# ?/, ""); print; next } NR > 1 { exit }' "${BASH_SOURCE[0]}" >&2; exit 2; }
 
 # qsub_id submits with the environment (-V) and prints the job id.
 qsub_id() {
@@ -44,35 +37,6 @@ set_walltime() {
 	((s > 300)) || die "BBMX_WALLTIME must be more than 5 minutes"
 	export BBMX_STOP_AFTER=$((s - 120))
 	wt=(-l "walltime=$BBMX_WALLTIME")
-}
-
-absolute_sweep() {
-	[[ -n $BBMX_SWEEP ]] || die "set BBMX_SWEEP to the sweep file"
-	[[ -r $BBMX_SWEEP ]] || die "cannot read the sweep file $BBMX_SWEEP"
-	BBMX_SWEEP=$(cd "$(dirname "$BBMX_SWEEP")" && pwd)/$(basename "$BBMX_SWEEP")
-}
-
-# plan shows the cost estimate and asks before anything is submitted.
-plan() {
-	absolute_sweep
-	local plan_flags=()
-	[[ -z $BBMX_FORCE ]] || plan_flags+=(--force)
-	echo "== cost estimate (bbmx plan $BBMX_SWEEP)"
-	"$BBMX" plan "$BBMX_SWEEP" "${plan_flags[@]}" || die "bbmx plan refused the sweep (BBMX_FORCE=1 to pass it anyway)"
-	if [[ -z $BBMX_YES && -t 0 ]]; then
-		read -r -p "Submit this sweep? [y/N] " answer
-		[[ $answer == [yY]* ]] || die "not submitted"
-	fi
-}
-
-secrets() {
-	[[ -e $BBMX_SECRETS/token ]] || "$BBMX" secrets init "$BBMX_SECRETS"
-}
-
-count() { # count VALUE DEFAULT NAME: a positive integer
-	local n=${1:-$2}
-	[[ $n =~ ^[1-9][0-9]*$ ]] || die "$3 must be a positive integer, not '$n'"
-	echo "$n"
 }
 
 # array_args N: -J 0-(N-1), or nothing for one job (PBS arrays need two subjobs at least).

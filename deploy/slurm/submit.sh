@@ -19,17 +19,10 @@
 set -euo pipefail
 
 here=$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)
-export BBMX=${BBMX:-bbmx}
-export BBMX_DIR=${BBMX_DIR:-$PWD}
-export BBMX_SWEEP=${BBMX_SWEEP:-}
-export BBMX_SECRETS=${BBMX_SECRETS:-$BBMX_DIR/secrets}
+# shellcheck source=../submit-common.sh
+source "$here/../submit-common.sh"
 BBMX_SBATCH_ARGS=${BBMX_SBATCH_ARGS:-}
 BBMX_WORKER_SBATCH_ARGS=${BBMX_WORKER_SBATCH_ARGS---exclusive}
-BBMX_YES=${BBMX_YES:-}
-BBMX_FORCE=${BBMX_FORCE:-}
-
-die() { echo "submit.sh: $*" >&2; exit 2; }
-usage() { awk 'NR > 1 && /^#/ { sub(/^# ?/, ""); print; next } NR > 1 { exit }' "${BASH_SOURCE[0]}" >&2; exit 2; }
 
 # sbatch_id submits and prints the job id (sbatch --parsable prints "id" or "id;cluster").
 sbatch_id() {
@@ -37,33 +30,6 @@ sbatch_id() {
 	# shellcheck disable=SC2086 # the *_SBATCH_ARGS are lists of options
 	out=$(sbatch --parsable $BBMX_SBATCH_ARGS "$@") || die "sbatch $* failed"
 	echo "${out%%;*}"
-}
-
-# plan shows the cost estimate and asks before anything is submitted.
-plan() {
-	[[ -n $BBMX_SWEEP ]] || die "set BBMX_SWEEP to the sweep file"
-	[[ -r $BBMX_SWEEP ]] || die "cannot read the sweep file $BBMX_SWEEP"
-	BBMX_SWEEP=$(cd "$(dirname "$BBMX_SWEEP")" && pwd)/$(basename "$BBMX_SWEEP")
-	local plan_flags=()
-	[[ -z $BBMX_FORCE ]] || plan_flags+=(--force)
-	echo "== cost estimate (bbmx plan $BBMX_SWEEP)"
-	"$BBMX" plan "$BBMX_SWEEP" "${plan_flags[@]}" || die "bbmx plan refused the sweep (BBMX_FORCE=1 to pass it anyway)"
-	if [[ -z $BBMX_YES && -t 0 ]]; then
-		read -r -p "Submit this sweep? [y/N] " answer
-		[[ $answer == [yY]* ]] || die "not submitted"
-	fi
-}
-
-secrets() {
-	if [[ ! -e $BBMX_SECRETS/token ]]; then
-		"$BBMX" secrets init "$BBMX_SECRETS"
-	fi
-}
-
-count() { # count VALUE DEFAULT NAME: a positive integer
-	local n=${1:-$2}
-	[[ $n =~ ^[1-9][0-9]*$ ]] || die "$3 must be a positive integer, not '$n'"
-	echo "$n"
 }
 
 mode=${1:-}
@@ -79,7 +45,7 @@ coordinated)
 	# shellcheck disable=SC2086
 	array=$(sbatch_id --dependency="after:$coord" --array="0-$((workers - 1))" $BBMX_WORKER_SBATCH_ARGS "$here/workers.sbatch")
 	echo "coordinator job $coord, worker array $array ($workers workers)"
-	echo "watch: squeue -j $coord,$array   and   $BBMX status --coordinator \$(cat $BBMX_DIR/coordinator.address) --token-file $BBMX_SECRETS/token"
+	echo "watch: squeue -j $coord,$array   and   $BBMX status --coordinator \$(cat $BBMX_DIR/coordinator.address) --token-file $BBMX_SECRETS/token --tls-ca $BBMX_SECRETS/ca.crt --tls-server-name bbmx-coordinator"
 	;;
 workers)
 	workers=$(count "${2:-}" 4 WORKERS)
@@ -88,8 +54,7 @@ workers)
 	echo "worker array $array ($workers workers)"
 	;;
 coordinator)
-	[[ -n $BBMX_SWEEP ]] || die "set BBMX_SWEEP to the sweep file"
-	BBMX_SWEEP=$(cd "$(dirname "$BBMX_SWEEP")" && pwd)/$(basename "$BBMX_SWEEP")
+	absolute_sweep
 	secrets
 	coord=$(sbatch_id "$here/coordinator.sbatch")
 	echo "coordinator job $coord"

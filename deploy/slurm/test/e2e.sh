@@ -6,7 +6,7 @@
 #   1. coordinated: coordinator job + worker array; the array is cancelled mid-way (scancel, as
 #      a preemption would), submitted again, and the sweep completes;
 #   2. static shards: shard array cancelled mid-way (its merge job dies with the dependency),
-#      submitted again with a new merge job;
+#      submitted again with a new merge job, which also writes the report;
 #   3. one allocation: coordinator and workers in a single job.
 #
 # Each final store must be identical to `bbmx run` of the same sweep: same sha256 of the records
@@ -246,7 +246,7 @@ log "coordinated: identical to bbmx run"
 
 # ---- 2. static shards, cancelled mid-way and resubmitted, then merged ----
 log "shards: submitting 3 shards and the merge job"
-export BBMX_DIR=$T/shards BBMX_SECRETS=$T/shards/secrets BBMX_REPORT_DIR=
+export BBMX_DIR=$T/shards BBMX_SECRETS=$T/shards/secrets
 out=$("$slurm_dir/submit.sh" shards 3)
 echo "$out"
 array=$(job_after "shard array" "$out")
@@ -283,11 +283,11 @@ expect_completed "$merge" "merge"
 got=$(digest "$BBMX_DIR/store.db")
 [[ $got == "$want" ]] || fail "merged shard store differs from bbmx run: $got != $want"
 log "shards: identical to bbmx run"
+[[ -n $(ls -A "$BBMX_DIR/report" 2>/dev/null) ]] || fail "the merge job wrote no report into $BBMX_DIR/report"
 
 # ---- 3. one allocation ----
 log "allocation: coordinator and worker in one job (TLS without client certificates)"
 export BBMX_DIR=$T/allocation BBMX_SECRETS=$T/allocation/secrets BBMX_TLS=on BBMX_THREADS=2
-unset BBMX_REPORT_DIR
 out=$("$slurm_dir/submit.sh" allocation 1)
 echo "$out"
 job=$(job_after "sweep job" "$out")
