@@ -338,6 +338,9 @@ func TestDigestStableAndSeeded(t *testing.T) {
 // TestRecordRoundTrip: DecodeRecord inverts AppendBinary, and truncated or corrupt bytes
 // give an error (never a panic). Deterministic.
 func TestRecordRoundTrip(t *testing.T) {
+	// reused is decoded into again and again (DecodeRecordInto), across dimensions and
+	// checkpoint counts, and must always equal a fresh decode.
+	var reused engine.Record
 	for d := 1; d <= 3; d++ {
 		c := splitCell(d)
 		var buf []byte
@@ -355,6 +358,9 @@ func TestRecordRoundTrip(t *testing.T) {
 			got, r, err := engine.DecodeRecord(rest)
 			if err != nil {
 				t.Fatalf("d=%d record %d: %v", d, i, err)
+			}
+			if r2, err := engine.DecodeRecordInto(&reused, rest); err != nil || len(r2) != len(r) || !reflect.DeepEqual(reused, want) {
+				t.Errorf("d=%d record %d: decoding into a used record differs (%v)", d, i, err)
 			}
 			rest = r
 			if !reflect.DeepEqual(got, want) {

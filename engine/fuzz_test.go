@@ -17,10 +17,18 @@ func FuzzDecodeRecord(f *testing.F) {
 		f.Add(r.AppendBinary(nil))
 	}
 	f.Add([]byte{1, 0, 1, 0, 0})
+	var reused Record // decoded into by every input, must match a fresh decode
 	f.Fuzz(func(t *testing.T, b []byte) {
 		rec, rest, err := DecodeRecord(b)
+		rest2, err2 := DecodeRecordInto(&reused, b)
+		if (err == nil) != (err2 == nil) {
+			t.Fatalf("DecodeRecord error %v, DecodeRecordInto error %v", err, err2)
+		}
 		if err != nil {
 			return
+		}
+		if len(rest2) != len(rest) || !bytes.Equal(reused.AppendBinary(nil), rec.AppendBinary(nil)) {
+			t.Fatalf("decoding into a used record differs from a fresh decode")
 		}
 		used := b[:len(b)-len(rest)]
 		if got := rec.AppendBinary(nil); !bytes.Equal(got, used) {

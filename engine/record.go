@@ -218,32 +218,53 @@ func (r *reader) f64() float64 {
 
 // DecodeRecord reads one record encoding from b and returns the rest of b.
 func DecodeRecord(b []byte) (Record, []byte, error) {
+	var rec Record
+	rest, err := DecodeRecordInto(&rec, b)
+	if err != nil {
+		return Record{}, nil, err
+	}
+	return rec, rest, nil
+}
+
+// DecodeRecordInto is DecodeRecord into *rec, reusing the storage of rec's slices (its
+// points' directions, histogram and checkpoints) where it is large enough: for callers
+// that decode many records one after another. Whatever rec held is overwritten; on error
+// its contents are unspecified.
+func DecodeRecordInto(rec *Record, b []byte) ([]byte, error) {
 	if len(b) == 0 || b[0] != recordFormat {
-		return Record{}, nil, fmt.Errorf("%w: unknown format", ErrCorruptRecord)
+		return nil, fmt.Errorf("%w: unknown format", ErrCorruptRecord)
 	}
 	r := &reader{b: b[1:]}
-	var rec Record
 	rec.Replicate = r.uvarint(math.MaxUint64)
 	rec.Dim = int(r.uvarint(64))
 	rec.Population = r.uvarint(math.MaxUint64)
 	nTop := r.uvarint(MaxTopK)
-	var dirs []float64
 	if r.err == nil && rec.Dim < 1 {
 		r.err = ErrCorruptRecord
 	}
-	if r.err == nil && nTop > 0 {
-		// One allocation for the points and one for all their directions; capped by what
-		// the remaining bytes can hold, so a corrupt count cannot make it large.
+	var dirs []float64 // fresh storage for directions, when the old cannot be reused
+	if r.err == nil && uint64(cap(rec.Top)) < nTop {
+		// Capped by what the remaining bytes can hold, so a corrupt count cannot make it large.
 		n := min(nTop, uint64(len(r.b))/uint64(8*(rec.Dim+1))+1)
 		rec.Top = make([]Point, 0, n)
-		dirs = make([]float64, 0, n*uint64(rec.Dim))
 	}
+	rec.Top = rec.Top[:0]
 	for i := uint64(0); i < nTop && r.err == nil; i++ {
-		if len(dirs)+rec.Dim > cap(dirs) {
-			dirs = make([]float64, 0, rec.Dim)
+		var dir []float64
+		if len(rec.Top) < cap(rec.Top) {
+			if old := rec.Top[:len(rec.Top)+1][len(rec.Top)].Dir; cap(old) >= rec.Dim {
+				dir = old[:rec.Dim]
+			}
 		}
-		dirs = dirs[:len(dirs)+rec.Dim]
-		p := Point{Radius: r.f64(), Dir: dirs[len(dirs)-rec.Dim : len(dirs) : len(dirs)]}
+		if dir == nil {
+			if len(dirs)+rec.Dim > cap(dirs) {
+				n := min(nTop-i, uint64(len(r.b))/uint64(8*(rec.Dim+1))+1)
+				dirs = make([]float64, 0, n*uint64(rec.Dim))
+			}
+			dirs = dirs[:len(dirs)+rec.Dim]
+			dir = dirs[len(dirs)-rec.Dim : len(dirs) : len(dirs)]
+		}
+		p := Point{Radius: r.f64(), Dir: dir}
 		for j := range p.Dir {
 			p.Dir[j] = r.f64()
 		}
@@ -253,28 +274,45 @@ func DecodeRecord(b []byte) (Record, []byte, error) {
 	first := r.uvarint(nb)
 	run := r.uvarint(nb - first)
 	if r.err == nil {
-		rec.Hist = make([]uint64, nb)
+		if uint64(cap(rec.Hist)) >= nb {
+			rec.Hist = rec.Hist[:nb]
+			clear(rec.Hist)
+		} else {
+			rec.Hist = make([]uint64, nb)
+		}
 		for i := first; i < first+run && r.err == nil; i++ {
 			rec.Hist[i] = r.uvarint(math.MaxUint64)
 		}
 	}
 	nc := r.uvarint(MaxCheckpoints)
+	checks := rec.Checks[:0]
 	for i := uint64(0); i < nc && r.err == nil; i++ {
+		var zdir []float64
+		if len(checks) < cap(checks) {
+			zdir = checks[:len(checks)+1][len(checks)].ZDir[:0]
+		}
 		c := CheckpointStats{Time: r.f64(), Population: r.uvarint(math.MaxUint64), Z: r.f64(), W: r.f64()}
 		nd := r.uvarint(MaxDirections)
-		if r.err == nil && nd > 0 {
-			c.ZDir = make([]float64, 0, min(nd, uint64(len(r.b))/8+1))
+		if r.err == nil && nd > 0 && uint64(cap(zdir)) < nd {
+			zdir = make([]float64, 0, min(nd, uint64(len(r.b))/8+1))
 		}
 		for j := uint64(0); j < nd && r.err == nil; j++ {
-			c.ZDir = append(c.ZDir, r.f64())
+			zdir = append(zdir, r.f64())
 		}
-		rec.Checks = append(rec.Checks, c)
+		if nd > 0 {
+			c.ZDir = zdir
+		}
+		checks = append(checks, c)
+	}
+	rec.Checks = checks
+	if nc == 0 {
+		rec.Checks = nil
 	}
 	if r.err != nil {
-		return Record{}, nil, r.err
+		return nil, r.err
 	}
 	if len(rec.Top) == 0 {
-		return Record{}, nil, fmt.Errorf("%w: no particles", ErrCorruptRecord)
+		return nil, fmt.Errorf("%w: no particles", ErrCorruptRecord)
 	}
-	return rec, r.b, nil
+	return r.b, nil
 }

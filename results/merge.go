@@ -226,14 +226,79 @@ var bucketProvenance = []byte("provenance")
 
 // mergeBatchBytes bounds the record bytes written per transaction of a merge (a
 // variable so tests can make batches small and cross their boundaries).
-var mergeBatchBytes = 32 << 20
+var mergeBatchBytes = 16 << 20
 
 // runRecords is how many consecutive decoded records are added to a sketch at once.
 const runRecords = 4096
 
+// mergeBatch is a run of records in key order, copied out of the inputs: 16-byte keys,
+// concatenated values ending at ends[i], and the input each came from.
+type mergeBatch struct {
+	keys, vals []byte
+	ends       []int
+	src        []int
+	last       bool // the cell's last batch: its sketch is due
+}
+
+func (b *mergeBatch) value(i int) []byte {
+	start := 0
+	if i > 0 {
+		start = b.ends[i-1]
+	}
+	return b.vals[start:b.ends[i]]
+}
+
+// cellSketcher builds one cell's sketch from the batches sent to it, decoding records
+// into a reused run; it runs beside the writer, so decoding overlaps the bbolt writes.
+// Each batch goes back to free when done; after a last batch the sketch (or the first
+// error) is sent on done.
+func cellSketcher(c engine.Cell, id string, inputs []string, in <-chan *mergeBatch, free chan<- *mergeBatch, done chan<- any) {
+	sk := NewSketch(c)
+	run := make([]engine.Record, 0, runRecords)
+	var runSeed uint64
+	var failed error
+	addRun := func() {
+		if len(run) > 0 && failed == nil {
+			if err := sk.AddRecords(c, runSeed, run[0].Replicate, run); err != nil {
+				failed = fmt.Errorf("cell %s: %w", id, err)
+			}
+		}
+		run = run[:0]
+	}
+	for b := range in {
+		for i := 0; i < len(b.ends) && failed == nil; i++ {
+			k := b.keys[16*i : 16*i+16]
+			seed, rep := binary.BigEndian.Uint64(k[:8]), binary.BigEndian.Uint64(k[8:])
+			if n := len(run); n > 0 && (runSeed != seed || run[n-1].Replicate+1 != rep || n == runRecords) {
+				addRun()
+			}
+			runSeed = seed
+			// Decode into the run's spare records: their buffers are reused, run after run.
+			run = run[:len(run)+1]
+			rec := &run[len(run)-1]
+			if _, err := engine.DecodeRecordInto(rec, b.value(i)); err != nil {
+				failed = fmt.Errorf("%s: cell %s replicate %d: %w", inputs[b.src[i]], id, rep, err)
+			} else if rec.Replicate != rep {
+				failed = fmt.Errorf("%s: cell %s: record under key %x is replicate %d", inputs[b.src[i]], id, k, rec.Replicate)
+			}
+		}
+		last := b.last
+		free <- b
+		if last {
+			addRun()
+			if failed != nil {
+				done <- failed
+			} else {
+				done <- sk
+			}
+			sk, failed = NewSketch(c), nil
+		}
+	}
+}
+
 // writeMerged writes every record into dst in (cell, seed, replicate) order, committing in
 // batches of about mergeBatchBytes; each cell's sketch is built from its records as they
-// stream past and written with the cell's last batch.
+// stream past (in a second goroutine) and written with the cell's last batch.
 func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[string][]int, cells map[string]engine.Cell) error {
 	prov := map[string]map[string][]Range{} // input -> cell -> ranges
 	// dst.db.NoSync: the batches are not synced one by one; the file is synced once at the
@@ -241,33 +306,32 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 	// the inputs are only read.
 	dst.db.NoSync = true
 	defer func() { dst.db.NoSync = false }()
+	// Two batch buffers: the walker fills one while the sketcher decodes the other. A
+	// buffer returns to free only once the sketcher is done with it; the writer has then
+	// committed it too, since it commits a batch before taking the next buffer.
+	free := make(chan *mergeBatch, 2)
+	free <- &mergeBatch{}
+	free <- &mergeBatch{}
 	for _, id := range ids {
 		c := cells[id].WithDefaults()
 		cj, _ := json.Marshal(c)
-		sk := NewSketch(c)
-		var (
-			keys, vals []byte // the pending batch: 16-byte keys and concatenated values
-			ends       []int  // end of each value in vals
-			run        []engine.Record
-			runSeed    uint64
-			written    int
-		)
-		addRun := func() error {
-			if len(run) == 0 {
-				return nil
+		toSketch := make(chan *mergeBatch, 2)
+		done := make(chan any, 1)
+		go cellSketcher(c, id, inputs, toSketch, free, done)
+		sketcherOpen := true
+		stop := func() {
+			if sketcherOpen {
+				close(toSketch)
+				sketcherOpen = false
 			}
-			if err := sk.AddRecords(c, runSeed, run[0].Replicate, run); err != nil {
-				return fmt.Errorf("cell %s: %w", id, err)
-			}
-			run = run[:0]
-			return nil
 		}
+		b := <-free
+		b.keys, b.vals, b.ends, b.src, b.last = b.keys[:0], b.vals[:0], b.ends[:0], b.src[:0], false
+		written := 0
 		flush := func(last bool) error {
-			if last {
-				if err := addRun(); err != nil {
-					return err
-				}
-			}
+			b.last = last
+			toSketch <- b
+			var sketch []byte
 			err := dst.db.Update(func(tx *bolt.Tx) error {
 				cb, err := tx.Bucket(bucketCells).CreateBucketIfNotExists([]byte(id))
 				if err != nil {
@@ -279,55 +343,51 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 				}
 				// Keys arrive in increasing order: full pages instead of half-full splits.
 				rb.FillPercent = 1
-				start := 0
-				for n, end := range ends {
-					if err := rb.Put(keys[16*n:16*n+16], vals[start:end]); err != nil {
+				for i := range b.ends {
+					if err := rb.Put(b.keys[16*i:16*i+16], b.value(i)); err != nil {
 						return err
 					}
-					start = end
 				}
 				if !last {
 					return nil
 				}
+				switch r := (<-done).(type) {
+				case error:
+					return r
+				case *Sketch:
+					sketch = r.AppendBinary(nil)
+				}
 				if err := cb.Put([]byte("cell"), cj); err != nil {
 					return err
 				}
-				return cb.Put([]byte("sketch"), sk.AppendBinary(nil))
+				return cb.Put([]byte("sketch"), sketch)
 			})
-			keys, vals, ends = keys[:0], vals[:0], ends[:0]
-			return err
+			if err != nil {
+				return err
+			}
+			if !last {
+				b = <-free
+				b.keys, b.vals, b.ends, b.src, b.last = b.keys[:0], b.vals[:0], b.ends[:0], b.src[:0], false
+			}
+			return nil
 		}
 		err := walkRecords(srcs, holders[id], id, func(k []byte, vs [][]byte, first int) error {
-			in := inputs[holders[id][first]]
-			v := vs[first]
-			seed, rep := binary.BigEndian.Uint64(k[:8]), binary.BigEndian.Uint64(k[8:])
-			rec, _, err := engine.DecodeRecord(v)
-			if err != nil {
-				return fmt.Errorf("%s: cell %s replicate %d: %w", in, id, rep, err)
-			}
-			if rec.Replicate != rep {
-				return fmt.Errorf("%s: cell %s: record under key %x is replicate %d", in, id, k, rec.Replicate)
-			}
-			if n := len(run); n > 0 && (runSeed != seed || run[n-1].Replicate+1 != rep || n == runRecords) {
-				if err := addRun(); err != nil {
-					return err
-				}
-			}
-			runSeed = seed
-			run = append(run, rec)
-			keys = append(keys, k...)
-			vals = append(vals, v...)
-			ends = append(ends, len(vals))
+			src := holders[id][first]
+			b.keys = append(b.keys, k...)
+			b.vals = append(b.vals, vs[first]...)
+			b.ends = append(b.ends, len(b.vals))
+			b.src = append(b.src, src)
 			written++
-			if len(vals) >= mergeBatchBytes {
+			if len(b.vals) >= mergeBatchBytes {
 				if err := flush(false); err != nil {
 					return err
 				}
 			}
-			pm := prov[in]
+			seed, rep := binary.BigEndian.Uint64(k[:8]), binary.BigEndian.Uint64(k[8:])
+			pm := prov[inputs[src]]
 			if pm == nil {
 				pm = map[string][]Range{}
-				prov[in] = pm
+				prov[inputs[src]] = pm
 			}
 			rs := pm[id]
 			if n := len(rs); n > 0 && rs[n-1].Seed == seed && rs[n-1].To == rep {
@@ -338,13 +398,14 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 			pm[id] = rs
 			return nil
 		})
+		if err == nil && written > 0 {
+			err = flush(true)
+		} else if err == nil {
+			free <- b // a cell without records is not written
+		}
+		stop()
 		if err != nil {
 			return err
-		}
-		if written > 0 {
-			if err := flush(true); err != nil {
-				return err
-			}
 		}
 	}
 	err := dst.db.Update(func(tx *bolt.Tx) error {
