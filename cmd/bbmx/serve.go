@@ -39,7 +39,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	certFile := fs.String("tls-cert", "", "server certificate (PEM) for TLS")
 	keyFile := fs.String("tls-key", "", "server private key (PEM) for TLS")
 	clientCA := fs.String("client-ca", "", "require client certificates signed by this CA (PEM)")
-	addrFile := fs.String("address-file", "", "after listening, write host:port here (workers read it with --address-file)")
+	addrFile := fs.String("address-file", "", "after listening, write host:port here for workers (--address-file); it says \"complete\" once the sweep is done and is removed if serve stops early")
 	advertise := fs.String("advertise", "", "host name written to --address-file (default: this machine's name when listening on all interfaces)")
 	metrics := fs.String("metrics-listen", "", "serve Prometheus metrics on this address (/metrics)")
 	keep := fs.Bool("keep-serving", false, "keep answering status calls after the sweep completes (until SIGTERM)")
@@ -140,8 +140,17 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		}
 	}()
 	if err := co.Wait(ctx); err != nil {
+		if *addrFile != "" {
+			os.Remove(*addrFile) // workers wait for the restarted coordinator's address
+		}
 		fmt.Fprintln(stderr, "stopping: every accepted result is in the store; start again with the same store to resume")
 		return nil
+	}
+	if *addrFile != "" {
+		// Workers that start from now on read this and exit at once instead of waiting.
+		if err := writeFileAtomic(*addrFile, []byte(sweepCompleteMark+"\n")); err != nil {
+			log.Warn("could not mark the address file complete", "error", err)
+		}
 	}
 	status := co.StatusNow()
 	printStatus(stdout, status, false)
@@ -157,6 +166,9 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	}
 	return nil
 }
+
+// sweepCompleteMark replaces the address in --address-file once the sweep is complete.
+const sweepCompleteMark = "complete"
 
 // writeFileAtomic writes data to path through a temporary file and a rename, so a
 // reader never sees half a file.

@@ -233,6 +233,11 @@ func TestProcessCoordinatedEqualsLocalAndShards(t *testing.T) {
 	if got := storeDigest(t, store); got != want {
 		t.Fatalf("coordinated run %s differs from local run %s", got, want)
 	}
+	// A worker that starts after the sweep finds it complete and exits at once.
+	late := start(t, "work", "--address-file", addrFile, "--token-file", tok, "--wait", "60s")
+	if code := late.wait(t, 10*time.Second); code != 0 || !strings.Contains(late.out.String(), "complete") {
+		t.Fatalf("late worker: exit %d: %s %s", code, late.out.String(), late.err.String())
+	}
 
 	var shards []string
 	for i := 0; i < 3; i++ {

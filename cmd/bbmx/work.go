@@ -28,7 +28,7 @@ type clientFlags struct {
 func addClientFlags(fs *flag.FlagSet) *clientFlags {
 	return &clientFlags{
 		coordinator: fs.String("coordinator", "", "coordinator address host:port"),
-		addrFile:    fs.String("address-file", "", "read the coordinator's host:port from this file (written by 'bbmx serve --address-file')"),
+		addrFile:    fs.String("address-file", "", "read the coordinator's host:port from this file (written by 'bbmx serve --address-file'; waits for it; exits 0 if it says the sweep is complete)"),
 		tokenFile:   fs.String("token-file", "", "file holding the shared token"),
 		ca:          fs.String("tls-ca", "", "CA certificate (PEM) that signed the coordinator's certificate: turns TLS on"),
 		cert:        fs.String("tls-cert", "", "client certificate (PEM), when the coordinator requires one"),
@@ -101,6 +101,10 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 				return nil
 			}
 			return err
+		}
+		if addr == sweepCompleteMark {
+			fmt.Fprintf(stdout, "worker done: %s says the sweep is already complete\n", *cf.addrFile)
+			return nil
 		}
 	}
 	cl, closeFn, err := cf.dial(addr)
