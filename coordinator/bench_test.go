@@ -102,8 +102,24 @@ func BenchmarkCompletions(b *testing.B) {
 	if v := envInts("BBMX_BENCH_LEASE", nil); len(v) > 0 {
 		lease = v[0]
 	}
-	for _, workers := range envInts("BBMX_BENCH_WORKERS", []int{16, 64, 256}) {
-		b.Run(fmt.Sprintf("workers=%d", workers), func(b *testing.B) {
+	type config struct {
+		workers  int
+		unjoined bool // group commit without joining adjacent results (the former way)
+	}
+	var configs []config
+	for _, w := range envInts("BBMX_BENCH_WORKERS", []int{16, 64, 256}) {
+		configs = append(configs, config{workers: w})
+	}
+	configs = append(configs, config{workers: configs[0].workers, unjoined: true})
+	for _, cf := range configs {
+		workers := cf.workers
+		name := fmt.Sprintf("workers=%d", workers)
+		if cf.unjoined {
+			name += ",unjoined"
+		}
+		b.Run(name, func(b *testing.B) {
+			joinAdjacent = !cf.unjoined
+			defer func() { joinAdjacent = true }()
 			recs := benchRecords(b, b.N)
 			sw := mustSweep(b, benchSweepSrc(b.N))
 			st := newStore(b, sw)
