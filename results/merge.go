@@ -127,16 +127,27 @@ func MergeStores(out string, inputs []string) error {
 	if len(conflicts) > 0 {
 		return &MergeError{Conflicts: conflicts}
 	}
-	dst, err := createForMerge(out, spec, srcs)
+	// The output is built under a temporary name and renamed when complete, so a merge
+	// killed half way never leaves a store at out (its batches are not synced one by one).
+	if _, err := os.Stat(out); err == nil {
+		return fmt.Errorf("%s already exists", out)
+	}
+	tmp := out + ".merging"
+	os.Remove(tmp) // left by a merge that was killed
+	dst, err := createForMerge(tmp, spec, srcs)
 	if err != nil {
 		return err
 	}
 	if err := writeMerged(dst, srcs, inputs, ids, holders, cells); err != nil {
 		dst.Close()
-		os.Remove(out)
+		os.Remove(tmp)
 		return err
 	}
-	return dst.Close()
+	if err := dst.Close(); err != nil {
+		os.Remove(tmp)
+		return err
+	}
+	return os.Rename(tmp, out)
 }
 
 // createForMerge creates the output store and reopens it with a memory map as large as
