@@ -200,37 +200,45 @@ type TaskResult struct {
 func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error {
 	return s.db.Update(func(tx *bolt.Tx) error {
 		cells := tx.Bucket(bucketCells)
+		// Each cell's sketch is decoded once per transaction, takes every result of the
+		// batch, and is encoded once at the end: counts and exact sums do not depend on
+		// grouping, so this gives the same bytes as one merge per result.
+		type open struct {
+			cb *bolt.Bucket
+			sk *Sketch
+		}
+		touched := map[string]*open{}
+		var order []string
 		for _, r := range batch {
-			cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
-			if err != nil {
-				return err
-			}
 			c := r.Cell.WithDefaults()
-			cj, _ := json.Marshal(c)
-			if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
-				return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
-			}
-			if err := cb.Put([]byte("cell"), cj); err != nil {
-				return err
-			}
-			sk := NewSketch(c)
-			if raw := cb.Get([]byte("sketch")); raw != nil {
-				if sk, err = DecodeSketch(raw); err != nil {
-					return fmt.Errorf("cell %s: %w", r.CellID, err)
+			o := touched[r.CellID]
+			if o == nil {
+				cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
+				if err != nil {
+					return err
 				}
+				cj, _ := json.Marshal(c)
+				if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
+					return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
+				}
+				if err := cb.Put([]byte("cell"), cj); err != nil {
+					return err
+				}
+				sk := NewSketch(c)
+				if raw := cb.Get([]byte("sketch")); raw != nil {
+					if sk, err = DecodeSketch(raw); err != nil {
+						return fmt.Errorf("cell %s: %w", r.CellID, err)
+					}
+				}
+				o = &open{cb: cb, sk: sk}
+				touched[r.CellID] = o
+				order = append(order, r.CellID)
 			}
-			task := NewSketch(c)
-			if err := task.AddRecords(c, r.Seed, r.From, r.Records); err != nil {
+			if err := o.sk.AddRecords(c, r.Seed, r.From, r.Records); err != nil {
 				return fmt.Errorf("cell %s: %w", r.CellID, err)
-			}
-			if err := sk.Merge(task); err != nil {
-				return fmt.Errorf("cell %s: %w", r.CellID, err)
-			}
-			if err := cb.Put([]byte("sketch"), sk.AppendBinary(nil)); err != nil {
-				return err
 			}
 			if r.KeepRecords {
-				rb, err := cb.CreateBucketIfNotExists(keyRecords)
+				rb, err := o.cb.CreateBucketIfNotExists(keyRecords)
 				if err != nil {
 					return err
 				}
@@ -241,6 +249,12 @@ func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error 
 						return err
 					}
 				}
+			}
+		}
+		for _, id := range order {
+			o := touched[id]
+			if err := o.cb.Put([]byte("sketch"), o.sk.AppendBinary(nil)); err != nil {
+				return err
 			}
 		}
 		if extra != nil {
