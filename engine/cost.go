@@ -5,15 +5,16 @@ package engine
 // about Model.ExpectedNodes(t) tree nodes.
 
 // AbsurdNodes is the total node count above which a run is refused unless forced:
-// about 100 CPU-hours at the engine's measured tens of nanoseconds per node.
+// about 170 CPU-hours at NominalNodeSeconds.
 const AbsurdNodes = 1e13
 
 // NominalNodeSeconds is a deliberately round per-node cost used for estimates shown
-// before a run; BENCHMARKS.md has the measured figures.
-const NominalNodeSeconds = 40e-9
+// before a run and for task sizing; BENCHMARKS.md has the measured figures (about 55,
+// 65 and 80 ns per node in d = 1, 2, 3 on the development machines).
+const NominalNodeSeconds = 60e-9
 
 // AbsurdSweepNodes is the same limit for a sweep run on a cluster (`bbmx plan`, the
-// coordinator): about 11,000 CPU-hours at NominalNodeSeconds, more than one sweep of a
+// coordinator): about 17,000 CPU-hours at NominalNodeSeconds, more than one sweep of a
 // research group's allocation usually holds. Sweeps above it need --force; since the
 // cost grows like e^{g T}, a mistyped horizon lands far above it.
 const AbsurdSweepNodes = 1e15

@@ -130,8 +130,9 @@ func TestSizeWholeReplicates(t *testing.T) {
 			t.Fatalf("%s: %d tasks, want %d", c.id, n, want)
 		}
 	}
-	// T = 14: a replicate is about 0.096 s, so 623 per task and 2 tasks for 1000.
-	if z := s.Size(cellOf(t, s, "d2-T14")); z.PerTask != 623 || s.TaskCount(cellOf(t, s, "d2-T14")) != 2 {
+	// T = 14: a replicate is about (2e^14 - 1) × 60 ns + 5 µs ≈ 0.1443 s, so 415 per task and
+	// 3 tasks for 1000 (derived).
+	if z := s.Size(cellOf(t, s, "d2-T14")); z.PerTask != 415 || s.TaskCount(cellOf(t, s, "d2-T14")) != 3 {
 		t.Fatalf("d2-T14: %+v", z)
 	}
 }
@@ -139,21 +140,21 @@ func TestSizeWholeReplicates(t *testing.T) {
 func TestSizeSplitReplicates(t *testing.T) {
 	s := mustParse(t, "seed = 1\n[grid]\ndims = [3]\nhorizons = [22]\nreplicates = 10\n", "s.toml")
 	cs := cellOf(t, s, "d3-T22")
-	// One replicate is about (2e^22 - 1) × 40 ns ≈ 287 s, so 5 parts of a minute
-	// (derived), split where e^{s0} = 8 × 5.
+	// One replicate is about (2e^22 - 1) × 60 ns ≈ 430 s, so 8 parts of a minute
+	// (derived), split where e^{s0} = 8 × 8.
 	z := s.Size(cs)
-	if z.Parts != 5 || z.PerTask != 1 {
+	if z.Parts != 8 || z.PerTask != 1 {
 		t.Fatalf("%+v", z)
 	}
-	if math.Exp(z.SplitAt) < 40 || math.Abs(z.SplitAt-math.Log(40)) > 1e-12 {
-		t.Fatalf("split at %v, want log 40 = %v", z.SplitAt, math.Log(40))
+	if math.Exp(z.SplitAt) < 64 || math.Abs(z.SplitAt-math.Log(64)) > 1e-12 {
+		t.Fatalf("split at %v, want log 64 = %v", z.SplitAt, math.Log(64))
 	}
-	if n := s.TaskCount(cs); n != 50 {
-		t.Fatalf("%d tasks, want 10 × 5", n)
+	if n := s.TaskCount(cs); n != 80 {
+		t.Fatalf("%d tasks, want 10 × 8", n)
 	}
 	// A split time in the file is used as given.
 	s.SplitAt = 2.5
-	if z := s.Size(cs); z.SplitAt != 2.5 || z.Parts != 5 {
+	if z := s.Size(cs); z.SplitAt != 2.5 || z.Parts != 8 {
 		t.Fatalf("split_at 2.5: %+v", z)
 	}
 	// The automatic split time is at most T/2 (reachable only below the file's bound on
