@@ -58,7 +58,8 @@ func num(x float64) any {
 }
 
 const planNote = "estimates from the cost model: (k e^{gT} - 1)/(k - 1) expected tree nodes per replicate " +
-	"at a nominal %.0f ns per node; node counts are random and real speed depends on the machine and d"
+	"at a nominal %.0f ns per node, plus a few microseconds per replicate and per checkpoint; node counts are random " +
+	"and real speed depends on the machine and d"
 
 func runPlan(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("plan", "SWEEP.toml [--cores N] [--json] [--force]",
