@@ -7,6 +7,7 @@ import (
 	"os/exec"
 	"path/filepath"
 	"strconv"
+	"strings"
 	"testing"
 	"time"
 
@@ -42,7 +43,90 @@ func TestMain(m *testing.M) {
 	if p := os.Getenv("BBMX_CRASH_WRITER"); p != "" {
 		crashWriter(p)
 	}
+	if out := os.Getenv("BBMX_CRASH_MERGE_OUT"); out != "" {
+		if err := MergeStores(out, filepath.SplitList(os.Getenv("BBMX_CRASH_MERGE_IN"))); err != nil {
+			fmt.Fprintln(os.Stderr, err)
+			os.Exit(4)
+		}
+		os.Exit(0)
+	}
 	os.Exit(m.Run())
+}
+
+// A merge killed with SIGKILL at arbitrary moments never leaves a store at its output
+// path (it is built under a temporary name and renamed when complete) and never touches
+// its inputs; the next merge to the same path succeeds and equals an uninterrupted one.
+func TestMergeSurvivesKill9(t *testing.T) {
+	if testing.Short() {
+		t.Skip("spawns processes")
+	}
+	dir := t.TempDir()
+	c := testCell()
+	var inputs []string
+	for i := 0; i < 2; i++ {
+		p := filepath.Join(dir, fmt.Sprintf("in%d.db", i))
+		st, err := Create(p, []byte("merge crash test"))
+		if err != nil {
+			t.Fatal(err)
+		}
+		recs, err := engine.Batch{Cell: c, Seed: uint64(1 + i), To: 3000, Threads: 2}.Run(context.Background())
+		if err != nil {
+			t.Fatal(err)
+		}
+		if err := st.Commit([]TaskResult{{CellID: "cell", Cell: c, Seed: uint64(1 + i), Records: recs, KeepRecords: true}}, nil); err != nil {
+			t.Fatal(err)
+		}
+		st.Close()
+		inputs = append(inputs, p)
+	}
+	digestOf := func(p string) [32]byte {
+		st, err := Open(p, true)
+		if err != nil {
+			t.Fatalf("%s: %v", p, err)
+		}
+		defer st.Close()
+		d, err := st.ContentDigest()
+		if err != nil {
+			t.Fatal(err)
+		}
+		return d
+	}
+	before := []([32]byte){digestOf(inputs[0]), digestOf(inputs[1])}
+	want := filepath.Join(dir, "want.db")
+	if err := MergeStores(want, inputs); err != nil {
+		t.Fatal(err)
+	}
+	out := filepath.Join(dir, "out.db")
+	for round := 0; round < 8; round++ {
+		os.Remove(out)
+		cmd := exec.Command(os.Args[0], "-test.run=^$")
+		cmd.Env = append(os.Environ(), "BBMX_CRASH_MERGE_OUT="+out, "BBMX_CRASH_MERGE_IN="+strings.Join(inputs, string(filepath.ListSeparator)))
+		if err := cmd.Start(); err != nil {
+			t.Fatal(err)
+		}
+		time.Sleep(time.Duration(5+round*23%90) * time.Millisecond)
+		cmd.Process.Kill()
+		cmd.Wait()
+		if _, err := os.Stat(out); err == nil {
+			// The merge finished before the kill: the output must be complete.
+			if digestOf(out) != digestOf(want) {
+				t.Fatalf("round %d: a finished merge differs from the uninterrupted one", round)
+			}
+			t.Logf("round %d: merge had finished", round)
+		}
+		for i, p := range inputs {
+			if digestOf(p) != before[i] {
+				t.Fatalf("round %d: input %s changed", round, p)
+			}
+		}
+	}
+	os.Remove(out)
+	if err := MergeStores(out, inputs); err != nil {
+		t.Fatalf("merge after killed merges: %v", err)
+	}
+	if digestOf(out) != digestOf(want) {
+		t.Fatal("merge after killed merges differs from an uninterrupted one")
+	}
 }
 
 // A writer killed with SIGKILL at arbitrary moments, many times, always leaves a store that
