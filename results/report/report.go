@@ -200,18 +200,49 @@ func Write(st *results.Store, dir string, opt Options) (*Report, error) {
 func (r *Report) Headline() string {
 	var sb strings.Builder
 	fmt.Fprintf(&sb, "Theory vs measured (%d cells; %s intervals; statistical estimates)\n", r.Cells, pct(r.Level))
+	// The largest horizon of each model's dimension: its rows are the ones closest to the
+	// limits, so they head the terminal; the page has every row.
+	largest := map[int]float64{}
+	parse := func(g string) (d int, t float64, ok bool) {
+		_, err := fmt.Sscanf(g, "d=%d T=%g", &d, &t)
+		return d, t, err == nil
+	}
+	for _, row := range r.Rows {
+		if d, t, ok := parse(row.Group); ok && t > largest[d] {
+			largest[d] = t
+		}
+	}
+	counts := map[string][2]int{}
 	rows := [][]string{{"group", "quantity", "theory", "estimate", "interval", "verdict"}}
 	for _, row := range r.Rows {
 		if row.Kind == "" {
 			continue
 		}
-		rows = append(rows, []string{row.Group, row.Quantity, row.theoryText(), fmtNum(row.Estimate), row.intervalText(), row.Verdict})
+		c := counts[row.Kind]
+		c[1]++
+		if row.Verdict == Agrees {
+			c[0]++
+		}
+		counts[row.Kind] = c
+		d, t, ok := parse(row.Group)
+		show := !ok || t == largest[d] || (row.Kind == KindExact && row.Verdict == Differs)
+		if show {
+			rows = append(rows, []string{row.Group, row.Quantity, row.theoryText(), fmtNum(row.Estimate), row.intervalText(), row.Verdict})
+		}
 	}
+	if c := counts[KindExact]; c[1] > 0 {
+		fmt.Fprintf(&sb, "exact checks (hold at every T): %d of %d agree; at this level about %s differ by chance\n",
+			c[0], c[1], pct(1-r.Level))
+	}
+	if c := counts[KindLimit]; c[1] > 0 {
+		fmt.Fprintf(&sb, "limit comparisons (hold as T grows): %d of %d agree; short horizons are expected to differ\n", c[0], c[1])
+	}
+	sb.WriteString("Shown: fits across horizons, the largest horizon of each dimension, and exact checks that differ.\n")
 	sb.WriteString(alignRows(rows))
 	if n := len(r.Skipped); n > 0 {
 		fmt.Fprintf(&sb, "%d fit(s) skipped; see the report.\n", n)
 	}
-	fmt.Fprintf(&sb, "Report: %s\n", r.HTMLPath())
+	fmt.Fprintf(&sb, "Every row: %s\n", r.HTMLPath())
 	return sb.String()
 }
 
