@@ -90,10 +90,7 @@ func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, erro
 	}
 	var whole *engine.Part
 	for _, k := range sortedKeys(have) {
-		q, err := engine.DecodePart(cell, have[k].AppendBinary(nil)) // a copy: Merge mutates
-		if err != nil {
-			return nil, err
-		}
+		q := have[k].Clone() // Merge changes its receiver; the kept parts stay as received
 		if whole == nil {
 			whole = q
 		} else if err := whole.Merge(q); err != nil {

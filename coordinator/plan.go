@@ -50,7 +50,6 @@ type task struct {
 type cellState struct {
 	spec     sweep.CellSpec
 	cellJSON []byte
-	size     sweep.Sizing
 	done     uint64 // replicates committed for the sweep's seed
 	tasks    []*task
 	// parts holds, per split replicate, the parts received so far (committed or being
@@ -121,7 +120,7 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 	if err != nil {
 		return nil, err
 	}
-	c := &cellState{spec: cs, cellJSON: cj, size: sz, parts: map[uint64]map[uint64]*engine.Part{}}
+	c := &cellState{spec: cs, cellJSON: cj, parts: map[uint64]map[uint64]*engine.Part{}}
 	for _, r := range have {
 		if r.Seed == seed {
 			c.done += min(r.To, cs.Replicates) - min(r.From, cs.Replicates)

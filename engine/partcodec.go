@@ -139,3 +139,20 @@ func decodeAcc(r *reader, a *exactsum.Acc) {
 	}
 	r.b = rest
 }
+
+// Clone returns a deep copy of p (Merge changes its receiver; the coordinator merges
+// copies so the parts it keeps stay as received).
+func (p *Part) Clone() *Part {
+	q := *p
+	q.top.items = make([]topItem, len(p.top.items))
+	for i, it := range p.top.items {
+		q.top.items[i] = topItem{r: it.r, pos: append([]float64(nil), it.pos...)}
+	}
+	q.hist = append([]uint64(nil), p.hist...)
+	q.checks = make([]partCheck, len(p.checks))
+	for i, pc := range p.checks {
+		q.checks[i] = pc
+		q.checks[i].zdir = append([]exactsum.Acc(nil), pc.zdir...)
+	}
+	return &q
+}

@@ -24,7 +24,8 @@ func TestPartEncodingRoundTrip(t *testing.T) {
 		t.Fatalf("want at least 3 roots at s0 for this test, got %d", roots)
 	}
 	cuts := []uint64{0, 1, 2, roots}
-	var acc *Part
+	var acc, first *Part
+	var firstEnc []byte
 	for i := 0; i+1 < len(cuts); i++ {
 		p, err := SimulatePart(c, seed, rep, s0, cuts[i], cuts[i+1])
 		if err != nil {
@@ -39,10 +40,15 @@ func TestPartEncodingRoundTrip(t *testing.T) {
 			t.Fatalf("part %d: encoding does not round-trip", i)
 		}
 		if acc == nil {
-			acc = q
+			first, firstEnc = q, enc
+			acc = q.Clone()
 		} else if err := acc.Merge(q); err != nil {
 			t.Fatal(err)
 		}
+	}
+	// Merging into the clone left the first part as it was decoded.
+	if !bytes.Equal(first.AppendBinary(nil), firstEnc) {
+		t.Fatal("a merge into a clone changed the original part")
 	}
 	got, err := acc.Record(c)
 	if err != nil {
