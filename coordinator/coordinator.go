@@ -125,16 +125,25 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	if err := adoptSpec(st, sw); err != nil {
 		return nil, err
 	}
-	c := &Coordinator{opt: opt, sw: sw, hash: sw.Hash(), store: st, log: opt.Log,
-		byID: map[string]*task{}, workers: map[string]time.Time{}, changed: make(chan struct{}),
-		commits: make(chan *commitReq, 1024), stopped: make(chan struct{})}
-	if err := c.plan(); err != nil {
+	c, err := planned(st, sw, opt)
+	if err != nil {
 		return nil, err
 	}
 	c.wg.Add(2)
 	go c.committer()
 	go c.clock()
 	return c, nil
+}
+
+// planned makes a coordinator with its plan built from the store, not yet running.
+func planned(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error) {
+	c := &Coordinator{opt: opt, sw: sw, hash: sw.Hash(), store: st, log: opt.Log,
+		byID: map[string]*task{}, workers: map[string]time.Time{}, changed: make(chan struct{}),
+		commits: make(chan *commitReq, 1024), stopped: make(chan struct{})}
+	if c.log == nil {
+		c.log = slog.New(slog.DiscardHandler)
+	}
+	return c, c.plan()
 }
 
 // adoptSpec writes the sweep's canonical form into a store that has none of ours yet,
@@ -639,9 +648,8 @@ func Inspect(st *results.Store) (*pb.StatusReply, error) {
 	if err != nil {
 		return nil, fmt.Errorf("%s was not made by a sweep: %w", st.Path(), err)
 	}
-	c := &Coordinator{opt: Options{Lease: time.Minute}, sw: sw, hash: sw.Hash(), store: st,
-		byID: map[string]*task{}, workers: map[string]time.Time{}, changed: make(chan struct{})}
-	if err := c.plan(); err != nil {
+	c, err := planned(st, sw, Options{Lease: time.Minute})
+	if err != nil {
 		return nil, err
 	}
 	return c.StatusNow(), nil

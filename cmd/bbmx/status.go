@@ -73,7 +73,7 @@ func printStatus(w io.Writer, s *pb.StatusReply, brief bool) {
 	if brief {
 		return
 	}
-	fmt.Fprintf(w, "%-14s %12s %12s %8s %8s %8s\n", "cell", "replicates", "wanted", "tasks", "leased", "parked")
+	fmt.Fprintf(w, "%-14s %12s %12s %8s %8s %8s\n", "cell", "replicates", "wanted", "to do", "leased", "parked")
 	for _, c := range s.Cells {
 		fmt.Fprintf(w, "%-14s %12d %12d %8d %8d %8d\n", c.CellId, c.ReplicatesDone, c.ReplicatesWanted, c.TasksTotal-c.TasksDone, c.TasksLeased, c.TasksParked)
 	}
