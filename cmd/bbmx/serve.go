@@ -126,16 +126,24 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	// Report progress now and then.
+	// Report progress now and then, with the time left at the rate since the start.
 	go func() {
 		t := time.NewTicker(time.Minute)
 		defer t.Stop()
+		start, done0 := time.Now(), replicatesDone(co.StatusNow())
 		for {
 			select {
 			case <-ctx.Done():
 				return
 			case <-t.C:
-				printStatus(stderr, co.StatusNow(), true)
+			}
+			st := co.StatusNow()
+			printStatus(stderr, st, true)
+			done, want := replicatesDone(st), replicatesWanted(st)
+			if done > done0 && want > done {
+				left := time.Duration(float64(time.Since(start)) * float64(want-done) / float64(done-done0))
+				fmt.Fprintf(stderr, "  about %s left at the rate since this coordinator started (estimate; replicates differ in cost)\n",
+					left.Round(time.Minute))
 			}
 		}
 	}()

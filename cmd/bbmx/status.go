@@ -58,12 +58,23 @@ func runStatus(args []string, stdout, stderr io.Writer) error {
 	return nil
 }
 
+func replicatesDone(s *pb.StatusReply) (n uint64) {
+	for _, c := range s.Cells {
+		n += c.ReplicatesDone
+	}
+	return n
+}
+
+func replicatesWanted(s *pb.StatusReply) (n uint64) {
+	for _, c := range s.Cells {
+		n += c.ReplicatesWanted
+	}
+	return n
+}
+
 // printStatus writes a status table.
 func printStatus(w io.Writer, s *pb.StatusReply, brief bool) {
-	var done, want uint64
-	for _, c := range s.Cells {
-		done, want = done+c.ReplicatesDone, want+c.ReplicatesWanted
-	}
+	done, want := replicatesDone(s), replicatesWanted(s)
 	state := "running"
 	if s.Complete {
 		state = "complete"
