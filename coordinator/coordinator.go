@@ -116,9 +116,6 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	if opt.CommitWindow <= 0 {
 		opt.CommitWindow = 2 * time.Millisecond
 	}
-	if opt.Log == nil {
-		opt.Log = slog.New(slog.DiscardHandler)
-	}
 	if opt.Shards > 1 && (opt.Shard < 0 || opt.Shard >= opt.Shards) {
 		return nil, fmt.Errorf("shard %d is outside 0..%d", opt.Shard, opt.Shards-1)
 	}
@@ -539,14 +536,9 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 		c.mu.Lock()
 		t.state = prev
 		c.stats.rejected++
-		if prev == statePending {
-			t.state = stateLeased // so fail() re-queues it exactly once
-		}
 		c.mu.Unlock()
 		c.log.Error("REJECTED a result that fails validation: worker fault", "task", t.id, "worker", req.WorkerId, "error", err)
-		if prev != stateParked {
-			c.fail(t, "invalid result: "+err.Error())
-		}
+		c.fail(t, "invalid result: "+err.Error()) // counts an attempt; a parked task stays parked
 		return nil, status.Errorf(codes.InvalidArgument, "task %s: result rejected: %v", t.id, err)
 	}
 	cr.digest = sum
