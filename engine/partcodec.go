@@ -105,8 +105,8 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 	for i := range p.checks {
 		pc := &p.checks[i]
 		pc.n = r.uvarint(math.MaxUint64)
-		decodeAcc(r, &pc.z)
-		decodeAcc(r, &pc.w)
+		r.acc(&pc.z)
+		r.acc(&pc.w)
 		nd := r.uvarint(MaxDirections)
 		if r.err == nil && int(nd) != c.NumDirections() {
 			return bad("has another direction grid")
@@ -116,7 +116,7 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 		}
 		pc.zdir = make([]exactsum.Acc, nd)
 		for j := range pc.zdir {
-			decodeAcc(r, &pc.zdir[j])
+			r.acc(&pc.zdir[j])
 		}
 	}
 	if r.err != nil {
@@ -128,7 +128,8 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 	return p, nil
 }
 
-func decodeAcc(r *reader, a *exactsum.Acc) {
+// acc reads an exact sum written by exactsum.Acc.AppendBinary.
+func (r *reader) acc(a *exactsum.Acc) {
 	if r.err != nil {
 		return
 	}
