@@ -1,6 +1,7 @@
 package coordinator
 
 import (
+	"bytes"
 	"context"
 	"encoding/binary"
 	"fmt"
@@ -39,6 +40,7 @@ func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, erro
 			return nil, fmt.Errorf("%d records for %d replicates", len(req.Records), t.to-t.from)
 		}
 		recs := make([]engine.Record, len(req.Records))
+		var enc []byte
 		for i, b := range req.Records {
 			rec, rest, err := engine.DecodeRecord(b)
 			if err != nil {
@@ -49,6 +51,11 @@ func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, erro
 			}
 			if err := checkRecord(cell, &rec, t.from+uint64(i)); err != nil {
 				return nil, fmt.Errorf("record %d: %w", i, err)
+			}
+			// Duplicates are compared by a digest of the bytes sent, so a result must
+			// have exactly one spelling: an overlong varint, say, is refused.
+			if enc = rec.AppendBinary(enc[:0]); !bytes.Equal(enc, b) {
+				return nil, fmt.Errorf("record %d: not in canonical form", i)
 			}
 			recs[i] = rec
 		}

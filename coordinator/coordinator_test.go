@@ -260,6 +260,7 @@ func TestDuplicatesCorruptionAndParking(t *testing.T) {
 		func(r *pb.SubmitRequest) { r.Records[0], r.Records[1] = r.Records[1], r.Records[0] }, // wrong order
 		func(r *pb.SubmitRequest) { r.Part = []byte{1, 2, 3} },                                // a part on a range task
 		func(r *pb.SubmitRequest) { r.Records[3] = nanRadius(t, r.Records[3]) },               // NaN radius
+		func(r *pb.SubmitRequest) { r.Records[4] = overlongFirstByte(r.Records[4]) },          // same record, other bytes
 	}
 	for i, f := range corrupt {
 		r := &pb.SubmitRequest{TaskId: good.TaskId, Attempt: good.Attempt, WorkerId: w, Part: good.Part}
@@ -308,6 +309,12 @@ func TestDuplicatesCorruptionAndParking(t *testing.T) {
 	if st := co2.StatusNow(); len(st.Parked) != 1 || st.Parked[0].Error != "worker error: disk full" {
 		t.Fatalf("parked task after restart: %v", st.Parked)
 	}
+}
+
+// overlongFirstByte respells an encoding's first varint (after the format byte), when it
+// fits one byte, as two: the same value, other bytes.
+func overlongFirstByte(enc []byte) []byte {
+	return append([]byte{enc[0], enc[1] | 0x80, 0}, enc[2:]...)
 }
 
 // nanRadius replaces the first top radius of an encoded record by NaN, re-encoding so

@@ -1,6 +1,7 @@
 package engine
 
 import (
+	"bytes"
 	"encoding/binary"
 	"fmt"
 	"math"
@@ -124,6 +125,12 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 	}
 	if len(r.b) != 0 {
 		return bad("has trailing bytes")
+	}
+	// One result, one encoding: the coordinator identifies results by a digest of the
+	// bytes and keeps parts as sent, so an equivalent spelling (an overlong varint, top
+	// items out of order, padded exact sums) is refused rather than normalised.
+	if !bytes.Equal(p.AppendBinary(make([]byte, 0, len(b))), b) {
+		return bad("is not in canonical form")
 	}
 	return p, nil
 }

@@ -72,6 +72,12 @@ func TestDecodePartRejectsDamage(t *testing.T) {
 			t.Fatalf("truncated to %d bytes: want ErrCorruptRecord, got %v", n, err)
 		}
 	}
+	// The same part spelled another way (an overlong varint) is refused: results are
+	// identified by a digest of their bytes.
+	overlong := append([]byte{enc[0], enc[1] | 0x80, 0}, enc[2:]...) // replicate 3 in two bytes
+	if _, err := DecodePart(c, overlong); !errors.Is(err, ErrCorruptRecord) {
+		t.Fatalf("overlong replicate varint: want ErrCorruptRecord, got %v", err)
+	}
 	other := c
 	other.Observe.Checkpoints = nil
 	if _, err := DecodePart(other.WithDefaults(), enc); err == nil {
