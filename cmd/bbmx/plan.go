@@ -152,19 +152,19 @@ func makePlan(sw *sweep.Sweep, path string, cores int) planSummary {
 	return p
 }
 
-// hoursText prints a duration given in hours in the most readable unit.
+// hoursText words an estimated duration given in hours in the most readable unit.
 func hoursText(h float64) string {
 	switch {
 	case math.IsInf(h, 0) || math.IsNaN(h) || h > 1e6:
-		return fmt.Sprintf("%.3g hours", h)
+		return fmt.Sprintf("about %.3g hours", h)
 	case h < 1.0/3600:
-		return "under a second"
+		return "less than a second"
 	case h < 1:
-		return time.Duration(h * float64(time.Hour)).Round(time.Second).String()
+		return "about " + time.Duration(h*float64(time.Hour)).Round(time.Second).String()
 	case h < 48:
-		return fmt.Sprintf("%.1f hours", h)
+		return fmt.Sprintf("about %.1f hours", h)
 	}
-	return fmt.Sprintf("%.1f days", h/24)
+	return fmt.Sprintf("about %.1f days", h/24)
 }
 
 func writePlan(w io.Writer, p planSummary) {
@@ -190,7 +190,7 @@ func writePlan(w io.Writer, p planSummary) {
 		total += c.cpuHoursFinite
 	}
 	tw.Flush()
-	fmt.Fprintf(w, "\ntotal: %d cells, %d tasks, %s CPU-hours; about %s on %d cores if the work spreads evenly\n",
+	fmt.Fprintf(w, "\ntotal: %d cells, %d tasks, %s CPU-hours; %s on %d cores if the work spreads evenly\n",
 		len(p.Cells), p.Tasks, cpuHours(total), hoursText(total/float64(p.Cores)), p.Cores)
 	if p.Absurd {
 		fmt.Fprintln(w, "warning: the cost is above the limit for a sweep (shown because of --force)")
