@@ -7,6 +7,7 @@ import (
 	"math"
 
 	"bbmx/engine/exactsum"
+	"bbmx/engine/wire"
 )
 
 // Part encoding: a canonical byte form of a Part, so a subtree task computed on one
@@ -60,70 +61,70 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 	if len(b) == 0 || b[0] != partFormat {
 		return bad("has an unknown format")
 	}
-	r := &reader{b: b[1:]}
-	p := &Part{Replicate: r.uvarint(math.MaxUint64), SplitAt: r.f64(), Roots: r.uvarint(math.MaxUint64)}
-	p.From = r.uvarint(p.Roots)
-	p.To = r.uvarint(p.Roots)
-	p.pop = r.uvarint(math.MaxUint64)
-	if r.err != nil {
+	r := wire.NewReader(b[1:], ErrCorruptRecord)
+	p := &Part{Replicate: r.Uvarint(math.MaxUint64), SplitAt: r.F64(), Roots: r.Uvarint(math.MaxUint64)}
+	p.From = r.Uvarint(p.Roots)
+	p.To = r.Uvarint(p.Roots)
+	p.pop = r.Uvarint(math.MaxUint64)
+	if r.Err != nil {
 		return bad("is truncated")
 	}
 	if !(p.SplitAt >= 0) || p.SplitAt >= c.Horizon || p.From >= p.To {
 		return bad("has an impossible split time or subtree range")
 	}
 	d := c.Model.Dim
-	nTop := r.uvarint(uint64(c.Observe.TopK))
+	nTop := r.Uvarint(uint64(c.Observe.TopK))
 	p.top = topK{k: c.Observe.TopK}
-	for i := uint64(0); i < nTop && r.err == nil; i++ {
-		rad := r.f64()
+	for i := uint64(0); i < nTop && r.Err == nil; i++ {
+		rad := r.F64()
 		pos := make([]float64, d)
 		var sq float64
 		for j := range pos {
-			pos[j] = r.f64()
+			pos[j] = r.F64()
 			sq += pos[j] * pos[j]
 		}
-		if r.err == nil && (!(rad >= 0) || math.IsInf(rad, 0) || math.IsInf(sq, 0) || math.IsNaN(sq) ||
+		if r.Err == nil && (!(rad >= 0) || math.IsInf(rad, 0) || math.IsInf(sq, 0) || math.IsNaN(sq) ||
 			math.Abs(math.Sqrt(sq)-rad) > 1e-9*(1+rad)) {
 			return bad("has a top radius that is not the length of its position")
 		}
 		p.top.offer(rad, pos)
 	}
-	if r.err == nil && uint64(len(p.top.items)) != nTop {
+	if r.Err == nil && uint64(len(p.top.items)) != nTop {
 		return bad("repeats a top item")
 	}
-	if nb := r.uvarint(MaxBins + 1); r.err == nil && int(nb) != c.Bins() {
+	if nb := r.Uvarint(MaxBins + 1); r.Err == nil && int(nb) != c.Bins() {
 		return bad("has a histogram of another size")
 	}
 	p.hist = make([]uint64, c.Bins())
 	for i := range p.hist {
-		p.hist[i] = r.uvarint(math.MaxUint64)
+		p.hist[i] = r.Uvarint(math.MaxUint64)
 	}
-	nc := r.uvarint(MaxCheckpoints)
-	if r.err == nil && int(nc) != len(c.Observe.Checkpoints) {
+	nc := r.Uvarint(MaxCheckpoints)
+	if r.Err == nil && int(nc) != len(c.Observe.Checkpoints) {
 		return bad("has another number of checkpoints")
 	}
 	p.checks = make([]partCheck, nc)
 	for i := range p.checks {
 		pc := &p.checks[i]
-		pc.n = r.uvarint(math.MaxUint64)
-		r.acc(&pc.z)
-		r.acc(&pc.w)
-		nd := r.uvarint(MaxDirections)
-		if r.err == nil && int(nd) != c.NumDirections() {
+		pc.n = r.Uvarint(math.MaxUint64)
+		r.Acc(&pc.z)
+		r.Acc(&pc.w)
+		nd := r.Uvarint(MaxDirections)
+		if r.Err == nil && int(nd) != c.NumDirections() {
 			return bad("has another direction grid")
 		}
-		if r.err != nil {
+		if r.Err != nil {
 			break
 		}
 		pc.zdir = make([]exactsum.Acc, nd)
 		for j := range pc.zdir {
-			r.acc(&pc.zdir[j])
+			r.Acc(&pc.zdir[j])
 		}
 	}
-	if r.err != nil {
+	if r.Err != nil {
 		return bad("is truncated or malformed")
 	}
-	if len(r.b) != 0 {
+	if len(r.B) != 0 {
 		return bad("has trailing bytes")
 	}
 	// One result, one encoding: the coordinator identifies results by a digest of the
@@ -133,19 +134,6 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 		return bad("is not in canonical form")
 	}
 	return p, nil
-}
-
-// acc reads an exact sum written by exactsum.Acc.AppendBinary.
-func (r *reader) acc(a *exactsum.Acc) {
-	if r.err != nil {
-		return
-	}
-	rest, err := a.Decode(r.b)
-	if err != nil {
-		r.err = ErrCorruptRecord
-		return
-	}
-	r.b = rest
 }
 
 // Clone returns a deep copy of p (Merge changes its receiver; the coordinator merges

@@ -7,6 +7,7 @@ import (
 	"math"
 
 	"bbmx/engine/exactsum"
+	"bbmx/engine/wire"
 )
 
 // Point is one particle at the horizon: its distance from the origin and unit direction.
@@ -185,37 +186,6 @@ func (r *Record) AppendBinary(b []byte) []byte {
 // ErrCorruptRecord is returned for bytes that are not a valid record encoding.
 var ErrCorruptRecord = errors.New("corrupt replicate record")
 
-type reader struct {
-	b   []byte
-	err error
-}
-
-func (r *reader) uvarint(limit uint64) uint64 {
-	if r.err != nil {
-		return 0
-	}
-	v, k := binary.Uvarint(r.b)
-	if k <= 0 || v > limit {
-		r.err = ErrCorruptRecord
-		return 0
-	}
-	r.b = r.b[k:]
-	return v
-}
-
-func (r *reader) f64() float64 {
-	if r.err != nil {
-		return 0
-	}
-	if len(r.b) < 8 {
-		r.err = ErrCorruptRecord
-		return 0
-	}
-	v := math.Float64frombits(binary.LittleEndian.Uint64(r.b))
-	r.b = r.b[8:]
-	return v
-}
-
 // DecodeRecord reads one record encoding from b and returns the rest of b.
 func DecodeRecord(b []byte) (Record, []byte, error) {
 	var rec Record
@@ -234,22 +204,22 @@ func DecodeRecordInto(rec *Record, b []byte) ([]byte, error) {
 	if len(b) == 0 || b[0] != recordFormat {
 		return nil, fmt.Errorf("%w: unknown format", ErrCorruptRecord)
 	}
-	r := &reader{b: b[1:]}
-	rec.Replicate = r.uvarint(math.MaxUint64)
-	rec.Dim = int(r.uvarint(64))
-	rec.Population = r.uvarint(math.MaxUint64)
-	nTop := r.uvarint(MaxTopK)
-	if r.err == nil && rec.Dim < 1 {
-		r.err = ErrCorruptRecord
+	r := wire.NewReader(b[1:], ErrCorruptRecord)
+	rec.Replicate = r.Uvarint(math.MaxUint64)
+	rec.Dim = int(r.Uvarint(64))
+	rec.Population = r.Uvarint(math.MaxUint64)
+	nTop := r.Uvarint(MaxTopK)
+	if r.Err == nil && rec.Dim < 1 {
+		r.Fail()
 	}
 	var dirs []float64 // fresh storage for directions, when the old cannot be reused
-	if r.err == nil && uint64(cap(rec.Top)) < nTop {
+	if r.Err == nil && uint64(cap(rec.Top)) < nTop {
 		// Capped by what the remaining bytes can hold, so a corrupt count cannot make it large.
-		n := min(nTop, uint64(len(r.b))/uint64(8*(rec.Dim+1))+1)
+		n := min(nTop, uint64(len(r.B))/uint64(8*(rec.Dim+1))+1)
 		rec.Top = make([]Point, 0, n)
 	}
 	rec.Top = rec.Top[:0]
-	for i := uint64(0); i < nTop && r.err == nil; i++ {
+	for i := uint64(0); i < nTop && r.Err == nil; i++ {
 		var dir []float64
 		if len(rec.Top) < cap(rec.Top) {
 			if old := rec.Top[:len(rec.Top)+1][len(rec.Top)].Dir; cap(old) >= rec.Dim {
@@ -258,46 +228,46 @@ func DecodeRecordInto(rec *Record, b []byte) ([]byte, error) {
 		}
 		if dir == nil {
 			if len(dirs)+rec.Dim > cap(dirs) {
-				n := min(nTop-i, uint64(len(r.b))/uint64(8*(rec.Dim+1))+1)
+				n := min(nTop-i, uint64(len(r.B))/uint64(8*(rec.Dim+1))+1)
 				dirs = make([]float64, 0, n*uint64(rec.Dim))
 			}
 			dirs = dirs[:len(dirs)+rec.Dim]
 			dir = dirs[len(dirs)-rec.Dim : len(dirs) : len(dirs)]
 		}
-		p := Point{Radius: r.f64(), Dir: dir}
+		p := Point{Radius: r.F64(), Dir: dir}
 		for j := range p.Dir {
-			p.Dir[j] = r.f64()
+			p.Dir[j] = r.F64()
 		}
 		rec.Top = append(rec.Top, p)
 	}
-	nb := r.uvarint(MaxBins + 1)
-	first := r.uvarint(nb)
-	run := r.uvarint(nb - first)
-	if r.err == nil {
+	nb := r.Uvarint(MaxBins + 1)
+	first := r.Uvarint(nb)
+	run := r.Uvarint(nb - first)
+	if r.Err == nil {
 		if uint64(cap(rec.Hist)) >= nb {
 			rec.Hist = rec.Hist[:nb]
 			clear(rec.Hist)
 		} else {
 			rec.Hist = make([]uint64, nb)
 		}
-		for i := first; i < first+run && r.err == nil; i++ {
-			rec.Hist[i] = r.uvarint(math.MaxUint64)
+		for i := first; i < first+run && r.Err == nil; i++ {
+			rec.Hist[i] = r.Uvarint(math.MaxUint64)
 		}
 	}
-	nc := r.uvarint(MaxCheckpoints)
+	nc := r.Uvarint(MaxCheckpoints)
 	checks := rec.Checks[:0]
-	for i := uint64(0); i < nc && r.err == nil; i++ {
+	for i := uint64(0); i < nc && r.Err == nil; i++ {
 		var zdir []float64
 		if len(checks) < cap(checks) {
 			zdir = checks[:len(checks)+1][len(checks)].ZDir[:0]
 		}
-		c := CheckpointStats{Time: r.f64(), Population: r.uvarint(math.MaxUint64), Z: r.f64(), W: r.f64()}
-		nd := r.uvarint(MaxDirections)
-		if r.err == nil && nd > 0 && uint64(cap(zdir)) < nd {
-			zdir = make([]float64, 0, min(nd, uint64(len(r.b))/8+1))
+		c := CheckpointStats{Time: r.F64(), Population: r.Uvarint(math.MaxUint64), Z: r.F64(), W: r.F64()}
+		nd := r.Uvarint(MaxDirections)
+		if r.Err == nil && nd > 0 && uint64(cap(zdir)) < nd {
+			zdir = make([]float64, 0, min(nd, uint64(len(r.B))/8+1))
 		}
-		for j := uint64(0); j < nd && r.err == nil; j++ {
-			zdir = append(zdir, r.f64())
+		for j := uint64(0); j < nd && r.Err == nil; j++ {
+			zdir = append(zdir, r.F64())
 		}
 		if nd > 0 {
 			c.ZDir = zdir
@@ -308,11 +278,11 @@ func DecodeRecordInto(rec *Record, b []byte) ([]byte, error) {
 	if nc == 0 {
 		rec.Checks = nil
 	}
-	if r.err != nil {
-		return nil, r.err
+	if r.Err != nil {
+		return nil, r.Err
 	}
 	if len(rec.Top) == 0 {
 		return nil, fmt.Errorf("%w: no particles", ErrCorruptRecord)
 	}
-	return r.b, nil
+	return r.B, nil
 }

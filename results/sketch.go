@@ -18,6 +18,7 @@ import (
 
 	"bbmx/engine"
 	"bbmx/engine/exactsum"
+	"bbmx/engine/wire"
 )
 
 // The fine grid for R*_T - m_T: bins of ShiftBin on [ShiftLo, ShiftHi), plus an underflow
@@ -271,51 +272,23 @@ func (s *Sketch) AppendBinary(b []byte) []byte {
 // errCorruptSketch is returned for bytes that are not a sketch encoding.
 var errCorruptSketch = fmt.Errorf("corrupt cell sketch")
 
-type sreader struct {
-	b   []byte
-	err error
-}
-
-func (r *sreader) uv(limit uint64) uint64 {
-	if r.err != nil {
-		return 0
-	}
-	v, k := binary.Uvarint(r.b)
-	if k <= 0 || v > limit {
-		r.err = errCorruptSketch
-		return 0
-	}
-	r.b = r.b[k:]
-	return v
-}
-
-func (r *sreader) acc(a *exactsum.Acc) {
-	if r.err != nil {
-		return
-	}
-	rest, err := a.Decode(r.b)
-	if err != nil {
-		r.err = errCorruptSketch
-		return
-	}
-	r.b = rest
-}
-
-func (r *sreader) sparse(limit uint64) []uint64 {
-	n := r.uv(limit)
-	nz := r.uv(n)
-	if r.err != nil {
+// readSparse reads a sparse count vector: length, number of non-zero entries, then
+// (index, count) pairs with increasing indices.
+func readSparse(r *wire.Reader, limit uint64) []uint64 {
+	n := r.Uvarint(limit)
+	nz := r.Uvarint(n)
+	if r.Err != nil {
 		return nil
 	}
 	xs := make([]uint64, n)
 	prev := -1
-	for i := uint64(0); i < nz && r.err == nil; i++ {
-		j := r.uv(n - 1)
-		if r.err == nil && int(j) <= prev {
-			r.err = errCorruptSketch
+	for i := uint64(0); i < nz && r.Err == nil; i++ {
+		j := r.Uvarint(n - 1)
+		if r.Err == nil && int(j) <= prev {
+			r.Fail()
 		}
 		prev = int(j)
-		xs[j] = r.uv(math.MaxUint64)
+		xs[j] = r.Uvarint(math.MaxUint64)
 	}
 	return xs
 }
@@ -325,42 +298,37 @@ func DecodeSketch(b []byte) (*Sketch, error) {
 	if len(b) == 0 || b[0] != 1 {
 		return nil, fmt.Errorf("%w: unknown format", errCorruptSketch)
 	}
-	r := &sreader{b: b[1:]}
+	r := wire.NewReader(b[1:], errCorruptSketch)
 	s := &Sketch{}
-	nr := r.uv(1 << 24)
-	for i := uint64(0); i < nr && r.err == nil; i++ {
-		s.Ranges = append(s.Ranges, Range{Seed: r.uv(math.MaxUint64), From: r.uv(math.MaxUint64), To: r.uv(math.MaxUint64)})
+	nr := r.Uvarint(1 << 24)
+	for i := uint64(0); i < nr && r.Err == nil; i++ {
+		s.Ranges = append(s.Ranges, Range{Seed: r.Uvarint(math.MaxUint64), From: r.Uvarint(math.MaxUint64), To: r.Uvarint(math.MaxUint64)})
 	}
-	s.N = r.uv(math.MaxUint64)
+	s.N = r.Uvarint(math.MaxUint64)
 	for k := range s.Shift {
-		r.acc(&s.Shift[k])
+		r.Acc(&s.Shift[k])
 	}
-	s.ShiftHist = r.sparse(nShift + 2)
-	s.Intensity = r.sparse(engine.MaxBins + 1)
-	s.Population = r.uv(math.MaxUint64)
-	s.Pop2.hi = r.uv(math.MaxUint64)
-	s.Pop2.lo = r.uv(math.MaxUint64)
-	nc := r.uv(engine.MaxCheckpoints)
-	for j := uint64(0); j < nc && r.err == nil; j++ {
+	s.ShiftHist = readSparse(r, nShift+2)
+	s.Intensity = readSparse(r, engine.MaxBins+1)
+	s.Population = r.Uvarint(math.MaxUint64)
+	s.Pop2.hi = r.Uvarint(math.MaxUint64)
+	s.Pop2.lo = r.Uvarint(math.MaxUint64)
+	nc := r.Uvarint(engine.MaxCheckpoints)
+	for j := uint64(0); j < nc && r.Err == nil; j++ {
 		var c CheckSketch
-		if len(r.b) < 8 {
-			r.err = errCorruptSketch
-			break
-		}
-		c.Time = math.Float64frombits(binary.LittleEndian.Uint64(r.b))
-		r.b = r.b[8:]
-		c.Population = r.uv(math.MaxUint64)
+		c.Time = r.F64()
+		c.Population = r.Uvarint(math.MaxUint64)
 		for _, a := range []*exactsum.Acc{&c.Z, &c.Z2, &c.W, &c.W2} {
-			r.acc(a)
+			r.Acc(a)
 		}
-		c.NonPositiveZ = r.uv(math.MaxUint64)
+		c.NonPositiveZ = r.Uvarint(math.MaxUint64)
 		s.Checks = append(s.Checks, c)
 	}
-	if r.err == nil && (len(r.b) != 0 || len(s.ShiftHist) != nShift+2) {
-		r.err = errCorruptSketch
+	if r.Err == nil && (len(r.B) != 0 || len(s.ShiftHist) != nShift+2) {
+		r.Fail()
 	}
-	if r.err != nil {
-		return nil, r.err
+	if r.Err != nil {
+		return nil, r.Err
 	}
 	return s, nil
 }
