@@ -42,6 +42,9 @@ type walker struct {
 	// power of two, so 1/beta is exact)
 	invBeta      float64
 	invBetaExact bool
+	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
+	// checkpoint to cut its path at
+	lastCheck float64
 }
 
 func newWalker(c Cell) *walker {
@@ -54,6 +57,10 @@ func newWalker(c Cell) *walker {
 		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda, rng: newNodeRand(),
 	}
 	w.dirs = DirectionGrid(m.Dim, w.nDirs)
+	w.lastCheck = -1
+	if n := len(w.checks); n > 0 {
+		w.lastCheck = w.checks[n-1]
+	}
 	if frac, _ := math.Frexp(m.Beta); frac == 0.5 {
 		w.invBeta, w.invBetaExact = 1/m.Beta, true
 	}
@@ -194,12 +201,38 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 		}
 		death := birth + e
 		end := w.level(depth + 1)
+		until := min(death, w.horizon)
+		if birth > w.lastCheck {
+			// No checkpoint to cut at (most nodes): one increment, drawn here inline.
+			end = end[:len(pos)]
+			if dt := until - birth; dt > 0 {
+				sd := w.sigma * math.Sqrt(dt)
+				r := w.rng
+				for i := range pos {
+					u := r.Uint64()
+					j := int32(u)
+					s := u >> 32 & 0x7F
+					var z float64
+					if absInt32(j) < zigKn[s] {
+						z = float64(j) * float64(zigWn[s])
+					} else {
+						t := r
+						z = t.normSlow(u)
+						r = t
+					}
+					end[i] = pos[i] + sd*z
+				}
+				w.rng = r
+			} else {
+				copy(end, pos)
+			}
+		} else {
+			w.advance(birth, until, pos, end, true)
+		}
 		if death > w.horizon {
-			w.advance(birth, w.horizon, pos, end, true)
 			w.leaf(end)
 			return
 		}
-		w.advance(birth, death, pos, end, true)
 		for i := 0; i < last; i++ {
 			w.node(k.child(i), death, end, depth+1)
 		}
