@@ -141,7 +141,7 @@ func BenchmarkCompletions(b *testing.B) {
 			ctx := context.Background()
 			ids := make([]string, workers)
 			for i, cl := range clients { // also opens the connections
-				reg, err := cl.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.FormatVersion, Threads: 1})
+				reg, err := cl.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version, Threads: 1})
 				if err != nil {
 					b.Fatal(err)
 				}

@@ -119,6 +119,9 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	if opt.Shards > 1 && (opt.Shard < 0 || opt.Shard >= opt.Shards) {
 		return nil, fmt.Errorf("shard %d is outside 0..%d", opt.Shard, opt.Shards-1)
 	}
+	if err := st.CheckStream(); err != nil {
+		return nil, err
+	}
 	if err := adoptSpec(st, sw); err != nil {
 		return nil, err
 	}
@@ -326,8 +329,9 @@ func newID() string {
 
 // Register introduces a worker.
 func (c *Coordinator) Register(ctx context.Context, req *pb.RegisterRequest) (*pb.RegisterReply, error) {
-	if req.EngineFormat != engine.FormatVersion {
-		return nil, status.Errorf(codes.FailedPrecondition, "worker writes engine format %d; this coordinator's store holds format %d: run the same bbmx version", req.EngineFormat, engine.FormatVersion)
+	if req.EngineFormat != engine.Version {
+		return nil, status.Errorf(codes.FailedPrecondition, "worker's engine is version %#x (random stream %d, record format %d); this coordinator's is %#x: run the same bbmx version",
+			req.EngineFormat, req.EngineFormat>>8, req.EngineFormat&0xff, engine.Version)
 	}
 	id := newID()
 	c.mu.Lock()

@@ -144,7 +144,7 @@ func TestResumeAfterStop(t *testing.T) {
 		t.Fatal(err)
 	}
 	ctx := context.Background()
-	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.FormatVersion})
+	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
 	// Do three tasks by hand, lease a fourth and abandon it.
 	lease, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 4})
 	for _, task := range lease.Tasks[:3] {
@@ -229,7 +229,7 @@ func TestDuplicatesCorruptionAndParking(t *testing.T) {
 	}
 	defer co.Close()
 	ctx := context.Background()
-	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.FormatVersion})
+	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
 	w := reg.WorkerId
 	lease, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: w, MaxTasks: 3})
 	a, b, c := lease.Tasks[0], lease.Tasks[1], lease.Tasks[2]
@@ -339,7 +339,7 @@ func TestLeaseExpiry(t *testing.T) {
 		t.Fatal(err)
 	}
 	ctx := context.Background()
-	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.FormatVersion})
+	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
 	lost, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 2})
 	if len(lost.Tasks) != 2 {
 		t.Fatal("no tasks leased")

@@ -65,3 +65,35 @@ func BenchmarkRawVariates(b *testing.B) {
 		})
 	}
 }
+
+// skeleton is the walk with everything but the keys, the lifetimes and the recursion
+// taken out: the part of a node's cost that is a chain of dependent steps (key, then
+// lifetime, then the leaf-or-branch test) and cannot overlap with the next node.
+type skeleton struct {
+	horizon float64
+	nodes   uint64
+}
+
+func (s *skeleton) node(k key, birth float64) {
+	for {
+		s.nodes++
+		var r nodeRand
+		r.seed(k)
+		death := birth + r.ExpFloat64()
+		if death > s.horizon {
+			return
+		}
+		s.node(k.child(0), death)
+		k, birth = k.child(1), death
+	}
+}
+
+// BenchmarkWalkSkeleton reports the stripped walk's ns per node (binary, T = 10): the
+// floor under BenchmarkNode that no change to the bookkeeping can go below.
+func BenchmarkWalkSkeleton(b *testing.B) {
+	s := &skeleton{horizon: 10}
+	for i := 0; i < b.N; i++ {
+		s.node(rootKey(1, 2, uint64(i)), 0)
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(s.nodes), "ns/node")
+}

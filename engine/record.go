@@ -136,6 +136,10 @@ const recordFormat = 1
 // FormatVersion is the version of the record encoding; stores refuse records of another.
 const FormatVersion = recordFormat
 
+// Version identifies what this engine produces: the random stream (high byte) and the
+// record encoding (low byte). A worker's must equal its coordinator's.
+const Version = StreamVersion<<8 | FormatVersion
+
 func appendF64(b []byte, x float64) []byte {
 	return binary.LittleEndian.AppendUint64(b, math.Float64bits(x))
 }

@@ -19,6 +19,9 @@ type AuditReport struct {
 // likely), and compares their encodings bit for bit with what is stored.
 func (s *Store) Audit(sample int, seed uint64) (AuditReport, error) {
 	var rep AuditReport
+	if err := s.CheckStream(); err != nil {
+		return rep, err
+	}
 	ids, err := s.Cells()
 	if err != nil {
 		return rep, err

@@ -71,6 +71,22 @@ func MergeStores(out string, inputs []string) error {
 	if err != nil {
 		return err
 	}
+	// One engine's replicates only: a store's stream version says which bits its
+	// replicates have, and the output keeps it.
+	stream, err := srcs[0].Stream()
+	if err != nil {
+		return err
+	}
+	for i, s := range srcs[1:] {
+		v, err := s.Stream()
+		if err != nil {
+			return err
+		}
+		if v != stream {
+			return fmt.Errorf("%s holds replicates of random stream %d and %s of stream %d: merge stores made by the same engine version",
+				inputs[0], stream, inputs[i+1], v)
+		}
+	}
 	// Settings agree and every cell holds records, before anything is read in bulk.
 	cells := map[string]engine.Cell{}
 	cellJSON := map[string][]byte{}
@@ -134,7 +150,7 @@ func MergeStores(out string, inputs []string) error {
 	}
 	tmp := out + ".merging"
 	os.Remove(tmp) // left by a merge that was killed
-	dst, err := createForMerge(tmp, spec, srcs)
+	dst, err := createForMerge(tmp, spec, stream, srcs)
 	if err != nil {
 		return err
 	}
@@ -153,7 +169,7 @@ func MergeStores(out string, inputs []string) error {
 // createForMerge creates the output store and reopens it with a memory map as large as
 // the inputs together (an upper bound of the output), so bbolt does not remap, and copy
 // every dirty page, each time the growing file outgrows the map.
-func createForMerge(out string, spec []byte, srcs []*Store) (*Store, error) {
+func createForMerge(out string, spec []byte, stream int, srcs []*Store) (*Store, error) {
 	dst, err := Create(out, spec)
 	if err != nil {
 		return nil, err
@@ -173,7 +189,13 @@ func createForMerge(out string, spec []byte, srcs []*Store) (*Store, error) {
 		os.Remove(out)
 		return nil, fmt.Errorf("create %s: %w", out, err)
 	}
-	return &Store{db: db, path: out}, nil
+	dst = &Store{db: db, path: out}
+	if err := dst.setStream(stream); err != nil {
+		dst.Close()
+		os.Remove(out)
+		return nil, err
+	}
+	return dst, nil
 }
 
 // walkRecords visits, in key order, every record key of cell id held by the inputs

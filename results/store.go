@@ -18,7 +18,9 @@ import (
 // Store layout (bbolt), format "bbmx-store/1":
 //
 //	meta/format         "bbmx-store/1"
-//	meta/engine         engine.FormatVersion, one byte
+//	meta/engine         engine.FormatVersion (the record encoding), one byte
+//	meta/stream         engine.StreamVersion of the engine that simulated the records, one
+//	                    byte; absent in stores made before it was recorded, which are 1
 //	meta/spec           the canonical sweep spec (opaque bytes, written by the planner)
 //	meta/spec_sha256    SHA-256 of meta/spec: the sweep's identity
 //	cells/<cell id>/cell      the engine.Cell as JSON
@@ -60,7 +62,8 @@ func Create(path string, spec []byte) (*Store, error) {
 		if err != nil {
 			return err
 		}
-		for k, v := range map[string][]byte{"format": []byte(storeFormat), "engine": {engine.FormatVersion}, "spec": spec, "spec_sha256": sum[:]} {
+		for k, v := range map[string][]byte{"format": []byte(storeFormat), "engine": {engine.FormatVersion},
+			"stream": {engine.StreamVersion}, "spec": spec, "spec_sha256": sum[:]} {
 			if err := m.Put([]byte(k), v); err != nil {
 				return err
 			}
@@ -114,6 +117,46 @@ func Open(path string, readOnly bool) (*Store, error) {
 
 // Close closes the store.
 func (s *Store) Close() error { return s.db.Close() }
+
+// Stream returns the random-stream version (engine.StreamVersion) of the engine that
+// simulated the store's records.
+func (s *Store) Stream() (int, error) {
+	v := 1 // stores from before the version was recorded
+	err := s.db.View(func(tx *bolt.Tx) error {
+		if b := tx.Bucket(bucketMeta).Get([]byte("stream")); b != nil {
+			if len(b) != 1 || b[0] == 0 {
+				return fmt.Errorf("%s: meta/stream is %v, not a stream version", s.path, b)
+			}
+			v = int(b[0])
+		}
+		return nil
+	})
+	return v, err
+}
+
+// setStream records the stream version of the records a store holds (a merge's output
+// takes its inputs').
+func (s *Store) setStream(v int) error {
+	return s.db.Update(func(tx *bolt.Tx) error {
+		return tx.Bucket(bucketMeta).Put([]byte("stream"), []byte{byte(v)})
+	})
+}
+
+// CheckStream returns an error unless this engine would simulate the store's replicates
+// bit for bit: what growing, resuming and auditing need. Reading (show, report, export)
+// needs no check.
+func (s *Store) CheckStream() error {
+	v, err := s.Stream()
+	if err != nil {
+		return err
+	}
+	if v != engine.StreamVersion {
+		return fmt.Errorf("%s was simulated by an engine with random stream %d; this bbmx's engine uses stream %d, so "+
+			"the same replicates would come out different. Read it (show, report, export) with this bbmx, but resume, "+
+			"grow or audit it with the bbmx that made it, or start a new store", s.path, v, engine.StreamVersion)
+	}
+	return nil
+}
 
 // Spec returns the canonical sweep spec and its SHA-256.
 func (s *Store) Spec() (spec []byte, sum [32]byte, err error) {

@@ -118,7 +118,7 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 	defer stopAll()
 	host, _ := os.Hostname()
 	reg, err := retry(ctx, opt.Wait, log, "register", func(c context.Context) (*pb.RegisterReply, error) {
-		return cl.Register(c, &pb.RegisterRequest{Hostname: host, Threads: uint32(opt.Threads), EngineFormat: engine.FormatVersion})
+		return cl.Register(c, &pb.RegisterRequest{Hostname: host, Threads: uint32(opt.Threads), EngineFormat: engine.Version})
 	})
 	if err != nil {
 		if ctx.Err() != nil {

@@ -302,6 +302,10 @@ func addToStore(path string, c engine.Cell, seed, first uint64, recs []engine.Re
 	if err != nil {
 		return err
 	}
+	if err := st.CheckStream(); err != nil {
+		st.Close()
+		return err
+	}
 	id := fmt.Sprintf("d%d-T%g", c.Model.Dim, c.Horizon)
 	err = st.Commit([]results.TaskResult{{CellID: id, Cell: c, Seed: seed, From: first, Records: recs, KeepRecords: true}}, nil)
 	if cerr := st.Close(); err == nil {

@@ -6,6 +6,7 @@ import (
 	"io"
 	"strings"
 
+	"bbmx/engine"
 	"bbmx/results"
 )
 
@@ -109,7 +110,14 @@ func runShow(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	fmt.Fprintf(stdout, "store %s (sweep %x)\n", path, sum[:6])
+	stream, err := st.Stream()
+	if err != nil {
+		return err
+	}
+	fmt.Fprintf(stdout, "store %s (sweep %x, engine random stream %d)\n", path, sum[:6], stream)
+	if stream != engine.StreamVersion {
+		fmt.Fprintf(stdout, "  this bbmx's engine uses stream %d: it reads this store but cannot resume, grow or audit it\n", engine.StreamVersion)
+	}
 	if len(ids) == 0 {
 		fmt.Fprintln(stdout, "no cells yet")
 	}

@@ -34,7 +34,8 @@ type RegisterRequest struct {
 	state    protoimpl.MessageState `protogen:"open.v1"`
 	Hostname string                 `protobuf:"bytes,1,opt,name=hostname,proto3" json:"hostname,omitempty"`
 	Threads  uint32                 `protobuf:"varint,2,opt,name=threads,proto3" json:"threads,omitempty"`
-	// engine_format is the worker's record encoding version; it must equal the store's.
+	// engine_format is the worker's engine version (engine.Version: random stream and
+	// record encoding); it must equal the coordinator's.
 	EngineFormat  uint32 `protobuf:"varint,3,opt,name=engine_format,json=engineFormat,proto3" json:"engine_format,omitempty"`
 	unknownFields protoimpl.UnknownFields
 	sizeCache     protoimpl.SizeCache
