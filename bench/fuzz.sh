@@ -11,3 +11,4 @@ go test -run XXX -fuzz '^FuzzDecodeRecord$' -fuzztime "$t" ./engine/
 go test -run XXX -fuzz '^FuzzParse$' -fuzztime "$t" ./coordinator/sweep/
 go test -run XXX -fuzz '^FuzzValidateResult$' -fuzztime "$t" ./coordinator/
 go test -run XXX -fuzz '^FuzzDecodePart$' -fuzztime "$t" ./coordinator/
+go test -run XXX -fuzz '^FuzzDecodeSketch$' -fuzztime "$t" ./results/

@@ -14,7 +14,7 @@ func testCell() engine.Cell {
 	return engine.Cell{Model: engine.DefaultModel(), Horizon: 3, Observe: engine.Observe{Checkpoints: []float64{1, 2}}}.WithDefaults()
 }
 
-func records(t *testing.T, c engine.Cell, seed, from, to uint64) []engine.Record {
+func records(t testing.TB, c engine.Cell, seed, from, to uint64) []engine.Record {
 	t.Helper()
 	recs, err := engine.Batch{Cell: c, Seed: seed, From: from, To: to}.Run(context.Background())
 	if err != nil {
