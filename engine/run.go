@@ -3,6 +3,7 @@ package engine
 import (
 	"context"
 	"crypto/sha256"
+	"errors"
 	"fmt"
 	"runtime"
 	"sync"
@@ -46,12 +47,16 @@ func (b Batch) Run(ctx context.Context) ([]Record, error) {
 		go func() {
 			defer wg.Done()
 			w := newWalker(c)
+			w.done = ctx.Done()
 			for {
 				i := next.Add(1) - 1
 				if uint64(i) >= n || ctx.Err() != nil {
 					return
 				}
 				p, err := w.run(b.Seed, b.From+uint64(i), 0, 0, 1)
+				if errors.Is(err, errWalkStopped) {
+					return // ctx is cancelled: reported below
+				}
 				var rec Record
 				if err == nil {
 					rec, err = p.Record(c)

@@ -1,6 +1,8 @@
 package engine
 
 import (
+	"context"
+	"errors"
 	"fmt"
 	"math"
 
@@ -42,6 +44,9 @@ type walker struct {
 	// power of two, so 1/beta is exact)
 	invBeta      float64
 	invBetaExact bool
+	// done, when closed, stops the walk (see pollNodes); aborted says it was stopped
+	done    <-chan struct{}
+	aborted bool
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
 	// checkpoint to cut its path at
 	lastCheck float64
@@ -88,6 +93,13 @@ func (w *walker) level(depth int) []float64 {
 // particles alive at time splitAt with depth-first index in [from, to). splitAt = 0,
 // from = 0, to = 1 is the whole replicate. The cell must be valid (see Cell.Validate).
 func SimulatePart(c Cell, seed, rep uint64, splitAt float64, from, to uint64) (*Part, error) {
+	return SimulatePartContext(context.Background(), c, seed, rep, splitAt, from, to)
+}
+
+// SimulatePartContext is SimulatePart that stops soon after ctx is cancelled (within
+// pollNodes tree nodes, milliseconds), returning ctx.Err(): one part may be minutes of
+// work, too long to finish after a worker is told to stop.
+func SimulatePartContext(ctx context.Context, c Cell, seed, rep uint64, splitAt float64, from, to uint64) (*Part, error) {
 	c = c.WithDefaults()
 	if err := c.Validate(); err != nil {
 		return nil, err
@@ -99,7 +111,12 @@ func SimulatePart(c Cell, seed, rep uint64, splitAt float64, from, to uint64) (*
 		return nil, fmt.Errorf("empty subtree range [%d,%d)", from, to)
 	}
 	w := newWalker(c)
-	return w.run(seed, rep, splitAt, from, to)
+	w.done = ctx.Done()
+	p, err := w.run(seed, rep, splitAt, from, to)
+	if errors.Is(err, errWalkStopped) {
+		return nil, ctx.Err()
+	}
+	return p, err
 }
 
 // Simulate computes the record of replicate rep of cell c with the given sweep seed.
@@ -130,6 +147,27 @@ func CountRoots(c Cell, seed, rep uint64, splitAt float64) (uint64, error) {
 	return w.rootIndex, nil
 }
 
+// pollNodes: the walk looks at its done channel once per this many nodes (a few
+// milliseconds of work), so a cancelled task stops promptly even inside one replicate.
+const pollNodes = 1 << 16
+
+// errWalkStopped is returned by run when the walk was stopped through its done channel;
+// callers report their context's error instead.
+var errWalkStopped = errors.New("walk stopped")
+
+// poll stops the walk if the done channel is closed: it sets aborted and moves the
+// horizon to -Inf, so every node still to be visited is a leaf at once and the walk
+// unwinds after a few nodes per level, with no test on the hot path beyond the node
+// count's. run discards the part and restores the horizon.
+func (w *walker) poll() {
+	select {
+	case <-w.done:
+		w.aborted = true
+		w.horizon = math.Inf(-1)
+	default:
+	}
+}
+
 func (w *walker) newPart(rep uint64, splitAt float64, from, to uint64) *Part {
 	p := &Part{Replicate: rep, SplitAt: splitAt, From: from, To: to, top: topK{k: w.c.Observe.TopK},
 		hist: make([]uint64, w.nBins), checks: make([]partCheck, len(w.checks))}
@@ -140,6 +178,7 @@ func (w *walker) newPart(rep uint64, splitAt float64, from, to uint64) *Part {
 }
 
 func (w *walker) run(seed, rep uint64, splitAt float64, from, to uint64) (*Part, error) {
+	w.horizon = w.c.Horizon // poll may have moved it
 	w.part = w.newPart(rep, splitAt, from, to)
 	w.splitAt, w.from, w.to, w.rootIndex, w.prefix = splitAt, from, to, 0, from == 0
 	root := rootKey(seed, w.c.Key(), rep)
@@ -150,6 +189,10 @@ func (w *walker) run(seed, rep uint64, splitAt float64, from, to uint64) (*Part,
 		w.node(root, 0, origin, 0)
 	} else {
 		w.top(root, 0, origin, 0)
+	}
+	if w.aborted {
+		w.aborted = false
+		return nil, errWalkStopped
 	}
 	w.part.Roots = w.rootIndex
 	if to > w.rootIndex {
@@ -186,6 +229,9 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 	last := w.k - 1
 	for {
 		w.nodes++
+		if w.nodes%pollNodes == 0 {
+			w.poll()
+		}
 		w.rng.seed(k)
 		u := w.rng.Uint64() // the exponential's ziggurat fast path, written out
 		var e float64

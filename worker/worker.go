@@ -176,6 +176,7 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 				if r := live[lost]; r != nil {
 					log.Info("task lost its lease; stopping it", "task", lost)
 					r.cancel()
+					delete(live, lost) // no longer claimed in heartbeats
 				}
 			}
 			mu.Unlock()
@@ -199,7 +200,9 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 		defer func() {
 			cancel()
 			mu.Lock()
-			delete(live, t.TaskId)
+			if live[t.TaskId] == r { // not already dropped, nor leased again since
+				delete(live, t.TaskId)
+			}
 			mu.Unlock()
 		}()
 		start := time.Now()
@@ -303,6 +306,9 @@ loop:
 			for tid, r := range live {
 				ids = append(ids, tid)
 				r.cancel()
+				// Dropped at once: a heartbeat that still named a handed-back task while
+				// its walk winds down would make the coordinator adopt it again.
+				delete(live, tid)
 			}
 			mu.Unlock()
 			if len(ids) > 0 {
@@ -340,7 +346,7 @@ func compute(ctx context.Context, t *pb.Task, progress func(int64)) (*pb.SubmitR
 	}
 	req := &pb.SubmitRequest{TaskId: t.TaskId, Attempt: t.Attempt}
 	if t.SplitAt > 0 {
-		p, err := engine.SimulatePart(cell, t.Seed, t.From, t.SplitAt, t.RootFrom, t.RootTo)
+		p, err := engine.SimulatePartContext(ctx, cell, t.Seed, t.From, t.SplitAt, t.RootFrom, t.RootTo)
 		if err != nil {
 			return nil, err
 		}

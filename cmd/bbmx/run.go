@@ -6,6 +6,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	iofs "io/fs"
 	"os"
 	"os/signal"
 	"runtime"
@@ -15,6 +16,8 @@ import (
 	"time"
 
 	"bbmx/coordinator"
+	"bbmx/coordinator/sweep"
+	"bbmx/engine"
 	"bbmx/worker"
 )
 
@@ -37,6 +40,37 @@ func parseShard(s string) (i, n int, err error) {
 	return i, n, nil
 }
 
+// localWallLimit: a local run estimated to take longer than this on this machine is
+// refused unless forced. A week on one machine is almost surely a sweep meant for a
+// cluster (bbmx serve and bbmx work, or shards).
+const localWallLimit = 7 * 24 * time.Hour
+
+// checkLocalTime estimates, from the cost model, the wall time of what is left of the
+// sweep (all of it when done is nil; a shard's share when shards > 1) on this machine's
+// threads, prints it when it is more than a minute, and refuses it past localWallLimit
+// unless forced.
+func checkLocalTime(stderr io.Writer, sw *sweep.Sweep, done map[string]uint64, shards, threads int, force bool) error {
+	var cpu float64
+	for _, c := range sw.Cells() {
+		left := c.Replicates - min(done[c.ID], c.Replicates)
+		cpu += float64(left) * engine.NominalReplicateSeconds(c.Cell)
+	}
+	if shards > 1 {
+		cpu /= float64(shards)
+	}
+	hours := cpu / float64(threads) / 3600
+	if hours*3600 > localWallLimit.Seconds() && !force {
+		return usagef("refusing: what is left needs %s on %d threads of this machine (cost-model estimate); run it on a cluster "+
+			"(bbmx serve and bbmx work, or --shard i/n per job: see 'Running on a cluster' in the README), shrink it, or pass --force",
+			hoursText(hours), threads)
+	}
+	if hours > 1.0/60 {
+		fmt.Fprintf(stderr, "estimate for what is left: %s on %d threads of this machine (cost model; real speed depends on the machine)\n",
+			hoursText(hours), threads)
+	}
+	return nil
+}
+
 func runRun(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("run", "SWEEP.toml [--store PATH] [--threads N] [--shard i/n] [--force]",
 		"Runs a sweep on this machine: a coordinator and one worker per core in one process, no\n"+
@@ -52,7 +86,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	storePath := fs.String("store", "", "results store (default bbmx-data/<sweep file name>.db, or ...-shard-i-of-n.db)")
 	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each (the default is every core)")
 	shard := fs.String("shard", "", "compute only share i of n, written as i/n (e.g. 3/16)")
-	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
+	force := fs.Bool("force", false, "run even if the cost estimate is absurd, or more than a week on this machine")
 	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")
 	noReport := fs.Bool("no-report", false, "do not write a report at the end")
 	verbose := fs.Bool("verbose", false, "log every lease and commit event")
@@ -84,6 +118,12 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	if *storePath == "" {
 		*storePath = defaultStorePath(path, suffix)
 	}
+	// The local time check comes before a new store is made, so a refusal leaves nothing.
+	if _, err := os.Stat(*storePath); errors.Is(err, iofs.ErrNotExist) {
+		if err := checkLocalTime(stderr, sw, nil, opt.Shards, *threads, *force); err != nil {
+			return err
+		}
+	}
 	st, created, err := openSweepStore(*storePath, sw)
 	if err != nil {
 		return err
@@ -95,6 +135,9 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	}
 	defer co.Close()
 	if !created {
+		if err := checkLocalTime(stderr, sw, co.InFlight(), opt.Shards, *threads, *force); err != nil {
+			return err
+		}
 		fmt.Fprintf(stderr, "resuming %s: only what it lacks is run\n", *storePath)
 	}
 

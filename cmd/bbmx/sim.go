@@ -208,7 +208,7 @@ func simulateSplit(ctx context.Context, c engine.Cell, seed, first, reps uint64,
 			wg.Add(1)
 			go func() {
 				defer wg.Done()
-				parts[i], errs[i] = engine.SimulatePart(c, seed, rep, s0, roots*i/n, roots*(i+1)/n)
+				parts[i], errs[i] = engine.SimulatePartContext(ctx, c, seed, rep, s0, roots*i/n, roots*(i+1)/n)
 			}()
 		}
 		wg.Wait()

@@ -332,6 +332,31 @@ func TestProcessWorkerSIGTERM(t *testing.T) {
 	until(t, 5*time.Second, "leases handed back", func() bool { return leased(status(t, addr, tok)) == 0 })
 }
 
+// Ctrl-C stops a local run promptly even in the middle of a replicate that takes many
+// seconds (the walk polls for cancellation), and what it was doing is handed back, not
+// left to expire and count as failures.
+func TestProcessRunInterruptMidReplicate(t *testing.T) {
+	// d = 1, T = 19: about 3.6e8 tree nodes, some 20 s, per replicate.
+	dir, sw, _ := setupWith(t, "name = \"long-replicates\"\nseed = 3\n[grid]\ndims = [1]\nhorizons = [19]\nreplicates = 8\n")
+	store := filepath.Join(dir, "s.db")
+	r := start(t, "run", sw, "--store", store, "--threads", "2", "--no-report")
+	time.Sleep(1500 * time.Millisecond) // both threads inside their first replicate
+	sent := time.Now()
+	r.cmd.Process.Signal(os.Interrupt)
+	r.wait(t, 10*time.Second)
+	if d := time.Since(sent); d > 5*time.Second {
+		t.Errorf("run took %v to stop after Ctrl-C", d)
+	}
+	// A failed attempt is logged as "task attempt failed; re-queued".
+	if errs := r.err.String(); !strings.Contains(errs, "interrupted") || strings.Contains(errs, "re-queued") {
+		t.Fatalf("interrupted run:\n%s", errs)
+	}
+	code, out, errs := runCLI(t, "status", "--store", store)
+	if row := regexp.MustCompile(`(?m)^d1-T19 .* (\d+)$`).FindStringSubmatch(out); code != 0 || row == nil || row[1] != "0" {
+		t.Fatalf("status after the interrupt (want nothing parked): exit %d\n%s%s", code, out, errs)
+	}
+}
+
 // Wrong or missing tokens are refused; TLS works with and without client certificates,
 // and a worker without the required client certificate cannot take part.
 func TestProcessTokenAndTLS(t *testing.T) {
@@ -492,6 +517,13 @@ func TestRunResumeStatusAndRefusal(t *testing.T) {
 	code, out, _ = runCLI(t, "status", "--store", store)
 	if code != 0 || !strings.Contains(out, "complete, 600/600 replicates") {
 		t.Fatalf("status --store: exit %d\n%s", code, out)
+	}
+	// A sweep sized for a cluster is refused on one thread of this machine (about 3,400
+	// CPU-hours: months), before any store is made; --shard shares it out.
+	big := filepath.Join(dir, "big.db")
+	code, _, errs = runCLI(t, "run", "../../examples/cluster.toml", "--store", big, "--threads", "1")
+	if _, err := os.Stat(big); code != 2 || !strings.Contains(errs, "refusing") || !strings.Contains(errs, "days") || err == nil {
+		t.Fatalf("cluster-sized local run: exit %d, store made: %v\n%s", code, err == nil, errs)
 	}
 	other := filepath.Join(dir, "other.toml")
 	os.WriteFile(other, []byte(strings.Replace(tinySweep, "seed = 6", "seed = 7", 1)), 0o644)
