@@ -361,6 +361,18 @@ func (c *Coordinator) StatusNow() *pb.StatusReply {
 	return rep
 }
 
+// Share returns, per cell, how many replicates this coordinator's store will hold when
+// its plan is done: the whole cell, or with Options.Shards a shard's share of it.
+func (c *Coordinator) Share() map[string]uint64 {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	out := map[string]uint64{}
+	for _, cell := range c.cells {
+		out[cell.spec.ID] = cell.share
+	}
+	return out
+}
+
 // InFlight returns, per cell, replicates done plus the progress reported by heartbeats
 // of leased range tasks (for progress displays).
 func (c *Coordinator) InFlight() map[string]uint64 {

@@ -270,6 +270,19 @@ func (c *Coordinator) plan() error {
 			}
 		}
 		cell.tasks = kept
+		// The share: what is done plus what the kept tasks will add (a split replicate
+		// once, however many of its parts are kept).
+		cell.share = cell.done
+		splitReps := map[uint64]bool{}
+		for _, t := range kept {
+			switch {
+			case !t.split:
+				cell.share += t.to - t.from
+			case !splitReps[t.from]:
+				splitReps[t.from] = true
+				cell.share++
+			}
+		}
 		c.cells = append(c.cells, cell)
 	}
 	return nil

@@ -411,3 +411,45 @@ func mustDigest(t testing.TB, st *results.Store) [32]byte {
 	}
 	return d
 }
+
+// Each shard's share of a cell is what its store holds when it is done, and the shares
+// add up to the cell, for range tasks and split replicates alike.
+func TestShardShares(t *testing.T) {
+	sw := mustSweep(t, testSweep)
+	for _, opt := range []Options{{PerTask: 9}, {Parts: 3}} {
+		sum := map[string]uint64{}
+		for i := 0; i < 3; i++ {
+			o := opt
+			o.Shard, o.Shards = i, 3
+			st := newStore(t, sw)
+			co, err := Open(st, sw, o)
+			if err != nil {
+				t.Fatal(err)
+			}
+			share := co.Share()
+			co.Close()
+			runLocal(t, sw, st, o, 2)
+			for id, n := range share {
+				sum[id] += n
+				if _, sk, err := st.CellSketch(id); err != nil || sk.N != n {
+					t.Fatalf("%+v shard %d cell %s: share %d, store holds %v (%v)", opt, i, id, n, sk, err)
+				}
+			}
+		}
+		for _, c := range sw.Cells() {
+			if sum[c.ID] != c.Replicates {
+				t.Errorf("%+v: shares of cell %s add up to %d, want %d", opt, c.ID, sum[c.ID], c.Replicates)
+			}
+		}
+	}
+	co, err := Open(newStore(t, sw), sw, Options{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer co.Close()
+	for _, c := range sw.Cells() {
+		if n := co.Share()[c.ID]; n != c.Replicates {
+			t.Errorf("unsharded share of %s: %d, want %d", c.ID, n, c.Replicates)
+		}
+	}
+}

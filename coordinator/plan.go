@@ -51,6 +51,7 @@ type cellState struct {
 	spec     sweep.CellSpec
 	cellJSON []byte
 	done     uint64 // replicates committed for the sweep's seed
+	share    uint64 // replicates this coordinator is to hold when done (a shard's share, or all)
 	tasks    []*task
 	// parts holds, per split replicate, the parts received so far (committed or being
 	// committed), keyed by rootFrom.

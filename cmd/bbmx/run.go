@@ -45,18 +45,18 @@ func parseShard(s string) (i, n int, err error) {
 // cluster (bbmx serve and bbmx work, or shards).
 const localWallLimit = 7 * 24 * time.Hour
 
-// checkLocalTime estimates, from the cost model, the wall time of what is left of the
-// sweep (all of it when done is nil; a shard's share when shards > 1) on this machine's
-// threads, prints it when it is more than a minute, and refuses it past localWallLimit
-// unless forced.
-func checkLocalTime(stderr io.Writer, sw *sweep.Sweep, done map[string]uint64, shards, threads int, force bool) error {
+// checkLocalTime estimates, from the cost model, the wall time on this machine's threads
+// of the replicates left per cell (nil: all of the sweep, or a 1/shards share of it),
+// prints it when it is more than a minute, and refuses it past localWallLimit unless
+// forced.
+func checkLocalTime(stderr io.Writer, sw *sweep.Sweep, left map[string]uint64, shards, threads int, force bool) error {
 	var cpu float64
 	for _, c := range sw.Cells() {
-		left := c.Replicates - min(done[c.ID], c.Replicates)
-		cpu += float64(left) * engine.NominalReplicateSeconds(c.Cell)
-	}
-	if shards > 1 {
-		cpu /= float64(shards)
+		n := float64(left[c.ID])
+		if left == nil {
+			n = float64(c.Replicates) / float64(max(shards, 1))
+		}
+		cpu += n * engine.NominalReplicateSeconds(c.Cell)
 	}
 	hours := cpu / float64(threads) / 3600
 	if hours*3600 > localWallLimit.Seconds() && !force {
@@ -134,8 +134,13 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer co.Close()
+	share := co.Share()
 	if !created {
-		if err := checkLocalTime(stderr, sw, co.InFlight(), opt.Shards, *threads, *force); err != nil {
+		done, left := co.InFlight(), map[string]uint64{}
+		for id, n := range share {
+			left[id] = n - min(done[id], n)
+		}
+		if err := checkLocalTime(stderr, sw, left, opt.Shards, *threads, *force); err != nil {
 			return err
 		}
 		fmt.Fprintf(stderr, "resuming %s: only what it lacks is run\n", *storePath)
@@ -147,7 +152,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	want := map[string]uint64{}
 	var order []string
 	for _, c := range sw.Cells() {
-		want[c.ID] = c.Replicates
+		want[c.ID] = share[c.ID] // a shard's share with --shard
 		order = append(order, c.ID)
 	}
 	stopView, viewDone := make(chan struct{}), make(chan struct{})
@@ -183,12 +188,12 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	share := ""
+	which := ""
 	if opt.Shards > 1 {
-		share = fmt.Sprintf(" (shard %d of %d)", opt.Shard, opt.Shards)
+		which = fmt.Sprintf(" (shard %d of %d)", opt.Shard, opt.Shards)
 	}
 	fmt.Fprintf(stdout, "sweep %q%s: %d tasks in %s on %d threads; simulating took %s of CPU\n",
-		sw.Name, share, stats.Tasks, wall.Round(time.Millisecond), *threads, stats.Compute.Round(time.Millisecond))
+		sw.Name, which, stats.Tasks, wall.Round(time.Millisecond), *threads, stats.Compute.Round(time.Millisecond))
 	fmt.Fprintf(stdout, "store %s, content digest %s\n", *storePath, hex.EncodeToString(digest[:]))
 	if len(status.Parked) > 0 {
 		return fmt.Errorf("%d task(s) parked after repeated failures (listed above); fix the cause and run again", len(status.Parked))
