@@ -72,8 +72,26 @@ func bbmxBinary(t *testing.T) string {
 
 type proc struct {
 	cmd      *exec.Cmd
-	out, err bytes.Buffer
+	out, err lockedBuffer
 	done     chan struct{}
+}
+
+// lockedBuffer collects a process's output; tests may read it while the process runs.
+type lockedBuffer struct {
+	mu sync.Mutex
+	b  bytes.Buffer
+}
+
+func (l *lockedBuffer) Write(p []byte) (int, error) {
+	l.mu.Lock()
+	defer l.mu.Unlock()
+	return l.b.Write(p)
+}
+
+func (l *lockedBuffer) String() string {
+	l.mu.Lock()
+	defer l.mu.Unlock()
+	return l.b.String()
 }
 
 func start(t *testing.T, args ...string) *proc {
@@ -339,8 +357,9 @@ func TestProcessRunInterruptMidReplicate(t *testing.T) {
 	// d = 1, T = 19: about 3.6e8 tree nodes, some 20 s, per replicate.
 	dir, sw, _ := setupWith(t, "name = \"long-replicates\"\nseed = 3\n[grid]\ndims = [1]\nhorizons = [19]\nreplicates = 8\n")
 	store := filepath.Join(dir, "s.db")
-	r := start(t, "run", sw, "--store", store, "--threads", "2", "--no-report")
-	time.Sleep(1500 * time.Millisecond) // both threads inside their first replicate
+	r := start(t, "run", sw, "--store", store, "--threads", "2", "--no-report", "--verbose")
+	until(t, 30*time.Second, "the run's worker to register", func() bool { return strings.Contains(r.err.String(), "registered") })
+	time.Sleep(time.Second) // both threads inside their first replicate
 	sent := time.Now()
 	r.cmd.Process.Signal(os.Interrupt)
 	r.wait(t, 10*time.Second)
