@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"encoding/hex"
+	"fmt"
 	"math"
 	"reflect"
 	"strconv"
@@ -123,6 +124,39 @@ func TestManyToOne(t *testing.T) {
 }
 
 func ftoa(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+
+// TestManyToOneGeneralModel: the same many-to-one check away from the standard model:
+// k children at rate beta give mean population e^{beta (k-1) T} (branching-process
+// handbook fact), and each particle is N(0, sigma^2 T I_d), so the mean count beyond r is
+// e^{beta (k-1) T} P(chi^2_d > r^2 / (sigma^2 T)) (gonum's distuv). One model has
+// k = 3 and beta = 0.5 (a power of two: the walk multiplies by 1/beta), the other
+// beta = 0.7 (it divides). False-alarm rate: 8 comparisons at 4 SE, about 5e-4.
+func TestManyToOneGeneralModel(t *testing.T) {
+	const T, n = 3.0, 6000
+	for i, m := range []engine.Model{
+		{Dim: 2, Sigma: 2, Beta: 0.5, Children: 3},
+		{Dim: 3, Sigma: 0.7, Beta: 0.7, Children: 2},
+	} {
+		c := engine.Cell{Model: m, Horizon: T, Observe: engine.Observe{TopK: engine.MaxTopK}}.WithDefaults()
+		recs := runBatch(t, c, 41+uint64(i), n)
+		mean := math.Exp(m.Beta * float64(m.Children-1) * T)
+		for _, r := range []float64{0, 1, 3, 5} {
+			x := make([]float64, n)
+			for j, rec := range recs {
+				if uint64(len(rec.Top)) != rec.Population {
+					t.Fatalf("model %d rep %d: Top has %d of %d particles", i, j, len(rec.Top), rec.Population)
+				}
+				for _, pt := range rec.Top {
+					if pt.Radius > r {
+						x[j]++
+					}
+				}
+			}
+			want := mean * (1 - distuv.ChiSquared{K: float64(m.Dim)}.CDF(r*r/(m.Sigma*m.Sigma*T)))
+			within4SE(t, fmt.Sprintf("model %+v count |X|>%g", m, r), x, want)
+		}
+	}
+}
 
 // TestManyToTwo: E[sum over ordered pairs u != v of <X_u, X_v>] = 2 d e^{2t}(1 - (1+t)e^{-t})
 // for binary branching at rate 1 (derived from the many-to-two formula, common practice;
