@@ -47,6 +47,23 @@ func BenchmarkRawVariates(b *testing.B) {
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
 		})
+		// As "engine", with the node's key derived from a parent's as the walk does:
+		// the floor for any walk under this stream's keying.
+		b.Run(fmt.Sprintf("engine+key/d=%d", d), func(b *testing.B) {
+			var r nodeRand
+			var s float64
+			for i := 0; i < b.N; i++ {
+				r.seed(key{uint64(i), uint64(i) * 0x9e3779b97f4a7c15}.child(i & 1))
+				s += r.ExpFloat64()
+				for j := 0; j < d; j++ {
+					s += r.NormFloat64()
+				}
+			}
+			if s == 0.5 {
+				b.Log(s)
+			}
+			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
+		})
 		b.Run(fmt.Sprintf("stdlib/d=%d", d), func(b *testing.B) {
 			p := rand.NewPCG(0, 0)
 			r := rand.New(p)
