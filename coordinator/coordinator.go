@@ -18,6 +18,9 @@
 //     lease it came from (results are deterministic); a later one is compared with the
 //     stored digest and dropped, and a mismatch is logged loudly as a worker fault.
 //   - A reply to Submit is sent only after the result is durable.
+//   - A heartbeat naming a pending task adopts it for its worker (the worker kept
+//     computing across a coordinator restart or a late heartbeat), unless that worker
+//     handed the task back itself.
 package coordinator
 
 import (
@@ -373,7 +376,7 @@ func (c *Coordinator) Lease(ctx context.Context, req *pb.LeaseRequest) (*pb.Leas
 		if t.state != statePending {
 			continue
 		}
-		t.state, t.worker, t.deadline, t.progress = stateLeased, req.WorkerId, deadline, 0
+		t.state, t.worker, t.deadline, t.progress, t.handedBy = stateLeased, req.WorkerId, deadline, 0, ""
 		t.attempts++
 		rep.Tasks = append(rep.Tasks, c.taskMsg(t))
 	}
@@ -413,7 +416,11 @@ func (c *Coordinator) Heartbeat(ctx context.Context, req *pb.HeartbeatRequest) (
 			rep.Lost = append(rep.Lost, tp.TaskId)
 		case t.state == stateLeased && t.worker == req.WorkerId:
 			t.deadline, t.progress = deadline, tp.Done
-		case t.state == statePending:
+		case t.state == statePending && t.handedBy != req.WorkerId:
+			// A task this worker holds but the coordinator does not know as leased (it
+			// restarted, or the lease expired while the heartbeat was late): adopted.
+			// Not one the worker itself handed back: a heartbeat sent just before the
+			// hand-back must not take it again.
 			t.state, t.worker, t.deadline, t.progress = stateLeased, req.WorkerId, deadline, tp.Done
 			t.attempts++
 			c.notify()
@@ -436,6 +443,7 @@ func (c *Coordinator) Release(ctx context.Context, req *pb.ReleaseRequest) (*pb.
 		}
 		if req.Error == "" {
 			c.requeueLocked(t)
+			t.handedBy = req.WorkerId
 			continue
 		}
 		failed = append(failed, t)

@@ -453,3 +453,53 @@ func TestShardShares(t *testing.T) {
 		}
 	}
 }
+
+// A heartbeat that names a task its worker has just handed back (sent before the
+// hand-back arrived) does not take the task again; another worker's heartbeat for a
+// pending task still adopts it (the coordinator-restart case), and the first worker can
+// lease it again normally.
+func TestHandedBackTaskNotReadopted(t *testing.T) {
+	sw := mustSweep(t, testSweep)
+	co, err := Open(newStore(t, sw), sw, Options{PerTask: 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer co.Close()
+	ctx := context.Background()
+	a, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
+	b, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
+	lease, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: a.WorkerId, MaxTasks: 1})
+	id := lease.Tasks[0].TaskId
+	co.Release(ctx, &pb.ReleaseRequest{WorkerId: a.WorkerId, TaskIds: []string{id}})
+	beat := func(w string) *pb.HeartbeatReply {
+		rep, err := co.Heartbeat(ctx, &pb.HeartbeatRequest{WorkerId: w, Tasks: []*pb.TaskProgress{{TaskId: id, Attempt: 1}}})
+		if err != nil {
+			t.Fatal(err)
+		}
+		return rep
+	}
+	if rep := beat(a.WorkerId); len(rep.Lost) != 1 || rep.Lost[0] != id {
+		t.Fatalf("a late heartbeat took back a handed-back task: lost %v", rep.Lost)
+	}
+	if n := leasedCount(co); n != 0 {
+		t.Fatalf("%d tasks leased after the hand-back", n)
+	}
+	if rep := beat(b.WorkerId); len(rep.Lost) != 0 || leasedCount(co) != 1 {
+		t.Fatalf("another worker's heartbeat should adopt the pending task: lost %v", rep.Lost)
+	}
+	co.Release(ctx, &pb.ReleaseRequest{WorkerId: b.WorkerId, TaskIds: []string{id}})
+	again, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: a.WorkerId, MaxTasks: 1})
+	if len(again.Tasks) != 1 || again.Tasks[0].TaskId != id {
+		t.Fatalf("the handed-back task should be leased first: %v", again.Tasks)
+	}
+	if rep := beat(a.WorkerId); len(rep.Lost) != 0 {
+		t.Fatalf("heartbeat for a task leased again: lost %v", rep.Lost)
+	}
+}
+
+func leasedCount(co *Coordinator) (n uint64) {
+	for _, c := range co.StatusNow().Cells {
+		n += c.TasksLeased
+	}
+	return n
+}

@@ -41,6 +41,7 @@ type task struct {
 	failures uint32 // failed attempts (errors, rejected results, expired leases)
 	lastErr  string
 	worker   string
+	handedBy string // the worker that last handed this task back (it may not adopt it again)
 	deadline int64 // unix ms
 	progress uint64
 	digest   [32]byte
