@@ -42,7 +42,7 @@ type task struct {
 	lastErr  string
 	worker   string
 	handedBy string // the worker that last handed this task back (it may not adopt it again)
-	deadline int64 // unix ms
+	deadline int64  // unix ms
 	progress uint64
 	digest   [32]byte
 }
