@@ -249,7 +249,8 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 		end := w.level(depth + 1)
 		until := min(death, w.horizon)
 		if birth > w.lastCheck {
-			// No checkpoint to cut at (most nodes): one increment, drawn here inline.
+			// No checkpoint to cut at (most nodes): one increment. This is move's body
+			// written out on purpose (move does not inline); keep the two the same.
 			end = end[:len(pos)]
 			if dt := until - birth; dt > 0 {
 				sd := w.sigma * math.Sqrt(dt)
