@@ -200,10 +200,7 @@ func (c *Coordinator) committer() {
 			}
 		}
 		timer.Stop()
-		err := c.commitBatch(batch)
-		for _, cr := range batch {
-			cr.done <- err
-		}
+		c.commitAndReply(batch)
 	}
 }
 
@@ -223,10 +220,16 @@ func (c *Coordinator) drainCommits() {
 		if len(batch) == 0 {
 			return
 		}
-		err := c.commitBatch(batch)
-		for _, cr := range batch {
-			cr.done <- err
-		}
+		c.commitAndReply(batch)
+	}
+}
+
+// commitAndReply commits a batch in one transaction and gives every waiting Submit the
+// outcome.
+func (c *Coordinator) commitAndReply(batch []*commitReq) {
+	err := c.commitBatch(batch)
+	for _, cr := range batch {
+		cr.done <- err
 	}
 }
 

@@ -226,11 +226,11 @@ func (c *Coordinator) plan() error {
 	for _, cs := range c.sw.Cells() {
 		var ranges []results.Range
 		if have[cs.ID] {
-			stored, sk, err := c.store.CellSketch(cs.ID)
+			recorded, sk, err := c.store.CellSketch(cs.ID)
 			if err != nil {
 				return err
 			}
-			sj, _ := json.Marshal(stored)
+			sj, _ := json.Marshal(recorded)
 			if string(sj) != string(mustJSON(cs.Cell)) {
 				return fmt.Errorf("cell %s in %s was recorded with other settings than this sweep's", cs.ID, c.store.Path())
 			}

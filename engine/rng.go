@@ -60,8 +60,6 @@ func (k key) child(i int) key {
 // standard library's generator.
 type nodeRand struct{ hi, lo uint64 }
 
-func newNodeRand() nodeRand { return nodeRand{} }
-
 func (n *nodeRand) seed(k key) { n.hi, n.lo = k.hi, k.lo }
 
 // Uint64 advances the 128-bit LCG state and applies the DXSM output function.

@@ -59,7 +59,7 @@ func newWalker(c Cell) *walker {
 		c: c, d: m.Dim, sigma: m.Sigma, beta: m.Beta, k: m.Children, horizon: c.Horizon,
 		centre: m.Centring(c.Horizon), hist0: -c.Observe.Window, invBin: 1 / c.Observe.BinWidth,
 		nBins: c.Bins(), checks: c.Observe.Checkpoints, nDirs: c.NumDirections(),
-		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda, rng: newNodeRand(),
+		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda,
 	}
 	w.dirs = DirectionGrid(m.Dim, w.nDirs)
 	w.lastCheck = -1
