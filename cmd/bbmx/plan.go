@@ -6,7 +6,6 @@ import (
 	"fmt"
 	"io"
 	"math"
-	"strings"
 	"text/tabwriter"
 	"time"
 
@@ -88,24 +87,9 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	cores := fs.Int("cores", 100, "cores for the wall-time estimate")
 	asJSON := fs.Bool("json", false, "print the plan as one JSON object")
 	force := fs.Bool("force", false, "show the plan even if the cost estimate is absurd")
-	var path string
-	if len(args) > 0 && !strings.HasPrefix(args[0], "-") {
-		path, args = args[0], args[1:]
-	}
-	if err := parseFlags(fs, args, stderr); err != nil {
+	path, err := positionalArg(fs, args, stderr, "name one sweep file, e.g. bbmx plan examples/quick.toml")
+	if err != nil {
 		return err
-	}
-	if path == "" && fs.NArg() > 0 {
-		path = fs.Arg(0)
-		if err := parseFlags(fs, fs.Args()[1:], stderr); err != nil { // flags may follow the file name
-			return err
-		}
-	}
-	if fs.NArg() > 0 {
-		return usagef("unexpected argument %q (plan takes one sweep file)", fs.Arg(0))
-	}
-	if path == "" {
-		return usagef("name one sweep file, e.g. bbmx plan examples/quick.toml")
 	}
 	if *cores < 1 {
 		return usagef("--cores must be at least 1, got %d", *cores)

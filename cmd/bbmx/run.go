@@ -90,12 +90,9 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")
 	noReport := fs.Bool("no-report", false, "do not write a report at the end")
 	verbose := fs.Bool("verbose", false, "log every lease and commit event")
-	path, err := storeArg(fs, args, stderr)
+	path, err := positionalArg(fs, args, stderr, "name one sweep file, e.g. bbmx run examples/quick.toml")
 	if err != nil {
 		return err
-	}
-	if path == "" || fs.NArg() > 0 {
-		return usagef("name one sweep file, e.g. bbmx run examples/quick.toml")
 	}
 	if *threads < 1 || *threads > 4096 {
 		return usagef("--threads must be between 1 and 4096, got %d", *threads)

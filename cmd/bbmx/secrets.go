@@ -73,20 +73,9 @@ func runSecretsInit(args []string, stdout, stderr io.Writer) error {
 	hostsFlag := fs.String("hosts", "", "comma-separated host names or IP addresses the coordinator is reached by")
 	days := fs.Int("days", 365, "days the certificates stay valid")
 	force := fs.Bool("force", false, "overwrite files that already exist in DIR")
-	var dir string
-	if len(args) > 0 && !strings.HasPrefix(args[0], "-") {
-		dir, args = args[0], args[1:]
-	}
-	if err := parseFlags(fs, args, stderr); err != nil {
+	dir, err := positionalArg(fs, args, stderr, "name the directory to write the secrets into")
+	if err != nil {
 		return err
-	}
-	if dir == "" && fs.NArg() == 1 {
-		dir = fs.Arg(0)
-	} else if fs.NArg() > 0 {
-		return usagef("unexpected argument %q", fs.Arg(fs.NArg()-1))
-	}
-	if dir == "" {
-		return usagef("name the directory to write the secrets into")
 	}
 	if *days < 1 || *days > 3650 {
 		return usagef("--days must be between 1 and 3650, got %d", *days)

@@ -46,13 +46,11 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
 	lease := fs.Duration("lease", 2*time.Minute, "lease length; workers send heartbeats every quarter of it")
 	verbose := fs.Bool("verbose", false, "log worker registrations and other routine events")
-	path, err := storeArg(fs, args, stderr)
+	path, err := positionalArg(fs, args, stderr, "name one sweep file")
 	if err != nil {
 		return err
 	}
 	switch {
-	case path == "" || fs.NArg() > 0:
-		return usagef("name one sweep file")
 	case *storePath == "":
 		return usagef("--store is required")
 	case *tokenFile == "":

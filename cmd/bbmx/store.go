@@ -73,6 +73,13 @@ func runAudit(args []string, stdout, stderr io.Writer) error {
 
 // storeArg parses flags that may come before or after one positional STORE argument.
 func storeArg(fs *flag.FlagSet, args []string, stderr io.Writer) (string, error) {
+	return positionalArg(fs, args, stderr, "name the store file")
+}
+
+// positionalArg parses flags that may come before or after a command's one positional
+// argument (a store, a sweep file, a folder) and returns that argument; missing is the
+// error when there is none.
+func positionalArg(fs *flag.FlagSet, args []string, stderr io.Writer, missing string) (string, error) {
 	var path string
 	if len(args) > 0 && !strings.HasPrefix(args[0], "-") {
 		path, args = args[0], args[1:]
@@ -80,13 +87,17 @@ func storeArg(fs *flag.FlagSet, args []string, stderr io.Writer) (string, error)
 	if err := parseFlags(fs, args, stderr); err != nil {
 		return "", err
 	}
-	if path == "" && fs.NArg() == 1 {
+	if path == "" && fs.NArg() > 0 {
 		path = fs.Arg(0)
-	} else if fs.NArg() > 0 {
-		return "", usagef("unexpected argument %q", fs.Arg(fs.NArg()-1))
+		if err := parseFlags(fs, fs.Args()[1:], stderr); err != nil { // flags may follow it
+			return "", err
+		}
+	}
+	if fs.NArg() > 0 {
+		return "", usagef("unexpected argument %q", fs.Arg(0))
 	}
 	if path == "" {
-		return "", usagef("name the store file")
+		return "", usagef("%s", missing)
 	}
 	return path, nil
 }

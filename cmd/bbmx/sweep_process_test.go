@@ -533,6 +533,10 @@ func TestRunResumeStatusAndRefusal(t *testing.T) {
 	if storeDigest(t, store) != first {
 		t.Fatal("a resumed run changed a complete store")
 	}
+	// Flags may come before the sweep file too.
+	if code, out, errs := runCLI(t, "run", "--store", store, "--no-report", sw); code != 0 || !strings.Contains(errs, "resuming") {
+		t.Fatalf("flags before the sweep file: exit %d\n%s\n%s", code, out, errs)
+	}
 	code, out, _ = runCLI(t, "status", "--store", store)
 	if code != 0 || !strings.Contains(out, "complete, 600/600 replicates") {
 		t.Fatalf("status --store: exit %d\n%s", code, out)
