@@ -248,19 +248,23 @@ func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error 
 		// grouping, so this gives the same bytes as one merge per result.
 		type open struct {
 			cb *bolt.Bucket
+			cj []byte // the cell's settings, which every result for it must share
 			sk *Sketch
 		}
 		touched := map[string]*open{}
 		var order []string
 		for _, r := range batch {
 			c := r.Cell.WithDefaults()
+			cj, _ := json.Marshal(c)
 			o := touched[r.CellID]
+			if o != nil && !bytes.Equal(o.cj, cj) {
+				return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
+			}
 			if o == nil {
 				cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
 				if err != nil {
 					return err
 				}
-				cj, _ := json.Marshal(c)
 				if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
 					return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
 				}
@@ -273,7 +277,7 @@ func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error 
 						return fmt.Errorf("cell %s: %w", r.CellID, err)
 					}
 				}
-				o = &open{cb: cb, sk: sk}
+				o = &open{cb: cb, cj: cj, sk: sk}
 				touched[r.CellID] = o
 				order = append(order, r.CellID)
 			}

@@ -86,3 +86,26 @@ func TestStoreStreamVersion(t *testing.T) {
 		t.Fatalf("a store this engine made: %v", err)
 	}
 }
+
+// Every result of a batch is checked against its cell's settings, not only the first of
+// each cell: a batch mixing two settings under one cell id is refused whole.
+func TestCommitChecksEveryResultsSettings(t *testing.T) {
+	c := testCell()
+	other := c
+	other.Observe.TopK = 5
+	st, err := Create(filepath.Join(t.TempDir(), "s.db"), []byte("spec"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	err = st.Commit([]TaskResult{
+		{CellID: "cell", Cell: c, Seed: 1, From: 0, Records: records(t, c, 1, 0, 3)},
+		{CellID: "cell", Cell: other, Seed: 1, From: 3, Records: records(t, other, 1, 3, 6)},
+	}, nil)
+	if err == nil || !strings.Contains(err.Error(), "settings differ") {
+		t.Fatalf("a batch mixing settings under one cell id: %v", err)
+	}
+	if ids, _ := st.Cells(); len(ids) != 0 {
+		t.Fatalf("a refused batch left cells %v", ids)
+	}
+}
