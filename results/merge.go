@@ -127,6 +127,9 @@ func MergeStores(out string, inputs []string) error {
 	// First pass: every replicate held by several inputs must be the same record in all.
 	var conflicts []Conflict
 	for _, id := range ids {
+		if len(holders[id]) < 2 {
+			continue // one holder: nothing to conflict with (its records are read once, when written)
+		}
 		err := walkRecords(srcs, holders[id], id, func(k []byte, vals [][]byte, first int) error {
 			for j, v := range vals {
 				if v != nil && j != first && !bytes.Equal(v, vals[first]) {
@@ -273,6 +276,12 @@ type mergeBatch struct {
 	last       bool // the cell's last batch: its sketch is due
 }
 
+// reset empties b for reuse, keeping its storage.
+func (b *mergeBatch) reset() *mergeBatch {
+	b.keys, b.vals, b.ends, b.src, b.last = b.keys[:0], b.vals[:0], b.ends[:0], b.src[:0], false
+	return b
+}
+
 func (b *mergeBatch) value(i int) []byte {
 	start := 0
 	if i > 0 {
@@ -324,7 +333,6 @@ func cellSketcher(c engine.Cell, id string, inputs []string, in <-chan *mergeBat
 			} else {
 				done <- sk
 			}
-			sk, failed = NewSketch(c), nil
 		}
 	}
 }
@@ -351,16 +359,8 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 		toSketch := make(chan *mergeBatch, 2)
 		done := make(chan any, 1)
 		go cellSketcher(c, id, inputs, toSketch, free, done)
-		sketcherOpen := true
-		stop := func() {
-			if sketcherOpen {
-				close(toSketch)
-				sketcherOpen = false
-			}
-		}
-		b := <-free
-		b.keys, b.vals, b.ends, b.src, b.last = b.keys[:0], b.vals[:0], b.ends[:0], b.src[:0], false
-		written := 0
+		b := (<-free).reset()
+		written := false
 		flush := func(last bool) error {
 			b.last = last
 			toSketch <- b
@@ -399,8 +399,7 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 				return err
 			}
 			if !last {
-				b = <-free
-				b.keys, b.vals, b.ends, b.src, b.last = b.keys[:0], b.vals[:0], b.ends[:0], b.src[:0], false
+				b = (<-free).reset()
 			}
 			return nil
 		}
@@ -410,7 +409,7 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 			b.vals = append(b.vals, vs[first]...)
 			b.ends = append(b.ends, len(b.vals))
 			b.src = append(b.src, src)
-			written++
+			written = true
 			if len(b.vals) >= mergeBatchBytes {
 				if err := flush(false); err != nil {
 					return err
@@ -431,12 +430,12 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 			pm[id] = rs
 			return nil
 		})
-		if err == nil && written > 0 {
+		if err == nil && written {
 			err = flush(true)
 		} else if err == nil {
 			free <- b // a cell without records is not written
 		}
-		stop()
+		close(toSketch)
 		if err != nil {
 			return err
 		}
