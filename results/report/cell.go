@@ -151,10 +151,7 @@ func (b *builder) cell(c *cellData) error {
 
 	var tab *law.Table
 	if xs != nil {
-		lo, hi := xs[0], xs[0]
-		for _, x := range xs {
-			lo, hi = math.Min(lo, x), math.Max(hi, x)
-		}
+		lo, hi := span(xs)
 		var err error
 		if tab, err = b.lawTable(m, c.cell.Horizon, centre+lo-1, centre+hi+1); err != nil {
 			return err

@@ -227,7 +227,7 @@ func (r *Report) Headline() string {
 		d, t, ok := parse(row.Group)
 		show := !ok || t == largest[d] || (row.Kind == KindExact && row.Verdict == Differs)
 		if show {
-			rows = append(rows, []string{row.Group, row.Quantity, row.theoryText(), fmtNum(row.Estimate), row.intervalText(), row.Verdict})
+			rows = append(rows, []string{row.Group, row.Quantity, row.theoryCell(), fmtNum(row.Estimate), row.intervalText(), row.Verdict})
 		}
 	}
 	if c := counts[KindExact]; c[1] > 0 {
@@ -247,13 +247,6 @@ func (r *Report) Headline() string {
 }
 
 func pct(level float64) string { return strings.TrimSuffix(fmt.Sprintf("%.4g", 100*level), ".0") + "%" }
-
-func (r Row) theoryText() string {
-	if r.Kind == "" {
-		return "-"
-	}
-	return r.Theory + " (" + r.Kind + ")"
-}
 
 func (r Row) intervalText() string {
 	switch {
