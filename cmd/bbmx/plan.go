@@ -99,10 +99,11 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	// The refusal, worded as for bbmx run; the estimate itself is printed below.
-	if err := checkCost(sw, *force, io.Discard); err != nil {
+	est, err := checkCost(sw, *force, io.Discard)
+	if err != nil {
 		return err
 	}
-	p := makePlan(sw, path, *cores)
+	p := makePlan(sw, est, path, *cores)
 	if *asJSON {
 		enc := json.NewEncoder(stdout)
 		enc.SetIndent("", "  ")
@@ -112,9 +113,8 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	return nil
 }
 
-func makePlan(sw *sweep.Sweep, path string, cores int) planSummary {
+func makePlan(sw *sweep.Sweep, est sweep.Estimate, path string, cores int) planSummary {
 	h := sw.Hash()
-	est := sw.Estimate()
 	p := planSummary{Sweep: sw.Name, File: path, Hash: hex.EncodeToString(h[:]), Seed: sw.Seed,
 		TaskSeconds: sw.TaskSeconds, Cores: cores, Absurd: est.Absurd,
 		Nodes: num(est.Nodes), CPUHours: num(est.CPUSeconds / 3600),
@@ -125,7 +125,7 @@ func makePlan(sw *sweep.Sweep, path string, cores int) planSummary {
 		nodes := c.Cell.Model.ExpectedNodes(c.Cell.Horizon)
 		hours := float64(c.Replicates) * engine.NominalReplicateSeconds(c.Cell) / 3600
 		row := planCell{ID: c.ID, Dim: c.Cell.Model.Dim, Horizon: c.Cell.Horizon, Replicates: c.Replicates,
-			NodesPerRep: num(nodes), Tasks: sw.TaskCount(c), PartsPerRep: z.Parts, SplitAt: z.SplitAt,
+			NodesPerRep: num(nodes), Tasks: z.Tasks(c.Replicates), PartsPerRep: z.Parts, SplitAt: z.SplitAt,
 			CPUHours: num(hours), cpuHoursFinite: hours}
 		if z.Parts <= 1 {
 			row.RepsPerTask = min(z.PerTask, c.Replicates)

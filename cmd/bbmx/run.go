@@ -16,7 +16,6 @@ import (
 	"time"
 
 	"bbmx/coordinator"
-	"bbmx/coordinator/sweep"
 	"bbmx/engine"
 	"bbmx/worker"
 )
@@ -45,19 +44,10 @@ func parseShard(s string) (i, n int, err error) {
 // cluster (bbmx serve and bbmx work, or shards).
 const localWallLimit = 7 * 24 * time.Hour
 
-// checkLocalTime estimates, from the cost model, the wall time on this machine's threads
-// of the replicates left per cell (nil: all of the sweep, or a 1/shards share of it),
-// prints it when it is more than a minute, and refuses it past localWallLimit unless
-// forced.
-func checkLocalTime(stderr io.Writer, sw *sweep.Sweep, left map[string]uint64, shards, threads int, force bool) error {
-	var cpu float64
-	for _, c := range sw.Cells() {
-		n := float64(left[c.ID])
-		if left == nil {
-			n = float64(c.Replicates) / float64(max(shards, 1))
-		}
-		cpu += n * engine.NominalReplicateSeconds(c.Cell)
-	}
+// checkLocalTime turns cpu, the cost model's CPU seconds of what is left to run here,
+// into the wall time on this machine's threads, prints it when it is more than a
+// minute, and refuses it past localWallLimit unless forced.
+func checkLocalTime(stderr io.Writer, cpu float64, threads int, force bool) error {
 	hours := cpu / float64(threads) / 3600
 	if hours*3600 > localWallLimit.Seconds() && !force {
 		return usagef("refusing: what is left needs %s on %d threads of this machine (cost-model estimate); run it on a cluster "+
@@ -109,7 +99,8 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	if err := checkCost(sw, *force, stderr); err != nil {
+	est, err := checkCost(sw, *force, stderr)
+	if err != nil {
 		return err
 	}
 	if *storePath == "" {
@@ -117,7 +108,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	}
 	// The local time check comes before a new store is made, so a refusal leaves nothing.
 	if _, err := os.Stat(*storePath); errors.Is(err, iofs.ErrNotExist) {
-		if err := checkLocalTime(stderr, sw, nil, opt.Shards, *threads, *force); err != nil {
+		if err := checkLocalTime(stderr, est.CPUSeconds/float64(max(opt.Shards, 1)), *threads, *force); err != nil {
 			return err
 		}
 	}
@@ -133,11 +124,12 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	defer co.Close()
 	share := co.Share()
 	if !created {
-		done, left := co.InFlight(), map[string]uint64{}
-		for id, n := range share {
-			left[id] = n - min(done[id], n)
+		done, cpu := co.InFlight(), 0.0
+		for _, c := range sw.Cells() {
+			left := share[c.ID] - min(done[c.ID], share[c.ID])
+			cpu += float64(left) * engine.NominalReplicateSeconds(c.Cell)
 		}
-		if err := checkLocalTime(stderr, sw, left, opt.Shards, *threads, *force); err != nil {
+		if err := checkLocalTime(stderr, cpu, *threads, *force); err != nil {
 			return err
 		}
 		fmt.Fprintf(stderr, "resuming %s: only what it lacks is run\n", *storePath)

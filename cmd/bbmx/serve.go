@@ -70,7 +70,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	if err != nil {
 		return err
 	}
-	if err := checkCost(sw, *force, stderr); err != nil {
+	if _, err := checkCost(sw, *force, stderr); err != nil {
 		return err
 	}
 	log := newLogger(stderr, *verbose)

@@ -26,19 +26,19 @@ func loadSweep(path string) (*sweep.Sweep, error) {
 	return sw, nil
 }
 
-// checkCost prints the cost model's estimate for what is still to run and refuses an
-// absurd sweep unless forced.
-func checkCost(sw *sweep.Sweep, force bool, stderr io.Writer) error {
+// checkCost prints the cost model's estimate for the whole sweep and refuses an absurd
+// sweep unless forced. It returns the estimate for callers that go on to use it.
+func checkCost(sw *sweep.Sweep, force bool, stderr io.Writer) (sweep.Estimate, error) {
 	est := sw.Estimate()
 	if est.Absurd && !force {
-		return usagef("refusing: the sweep needs about %.3g tree nodes, roughly %.0f CPU-hours (estimate from the cost model); shrink it or pass --force",
+		return est, usagef("refusing: the sweep needs about %.3g tree nodes, roughly %.0f CPU-hours (estimate from the cost model); shrink it or pass --force",
 			est.Nodes, est.CPUSeconds/3600)
 	}
 	if est.CPUSeconds > 60 {
 		fmt.Fprintf(stderr, "estimate for the whole sweep: %.3g tree nodes, about %.1f CPU-hours (cost model; work already in the store is skipped)\n",
 			est.Nodes, est.CPUSeconds/3600)
 	}
-	return nil
+	return est, nil
 }
 
 // defaultStorePath is where a sweep's store goes when none is named: a folder

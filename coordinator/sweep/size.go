@@ -69,12 +69,14 @@ func (s *Sweep) Size(c CellSpec) Sizing {
 }
 
 // TaskCount is the number of tasks the whole cell needs.
-func (s *Sweep) TaskCount(c CellSpec) uint64 {
-	z := s.Size(c)
+func (s *Sweep) TaskCount(c CellSpec) uint64 { return s.Size(c).Tasks(c.Replicates) }
+
+// Tasks is the number of tasks that this sizing cuts the given replicates into.
+func (z Sizing) Tasks(replicates uint64) uint64 {
 	if z.Parts > 1 {
-		return c.Replicates * uint64(z.Parts)
+		return replicates * uint64(z.Parts)
 	}
-	return (c.Replicates + z.PerTask - 1) / z.PerTask
+	return (replicates + z.PerTask - 1) / z.PerTask
 }
 
 // Estimate totals the cost model over the cells. The figures are estimates: the node
