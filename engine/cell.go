@@ -51,8 +51,8 @@ func (c Cell) Validate() error {
 		return fmt.Errorf("top-K must be between 1 and %d, got %d", MaxTopK, o.TopK)
 	case !(o.Window > 0) || math.IsInf(o.Window, 0):
 		return fmt.Errorf("histogram window must be positive, got %v", o.Window)
-	case !(o.BinWidth > 0):
-		return fmt.Errorf("histogram bin width must be positive, got %v", o.BinWidth)
+	case !(o.BinWidth > 0) || math.IsInf(o.BinWidth, 0):
+		return fmt.Errorf("histogram bin width must be a positive finite number, got %v", o.BinWidth)
 	case 2*o.Window/o.BinWidth > MaxBins:
 		return fmt.Errorf("histogram of window %v and bin %v has more than %d bins", o.Window, o.BinWidth, MaxBins)
 	case len(o.Checkpoints) > MaxCheckpoints:

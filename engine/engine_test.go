@@ -446,6 +446,7 @@ func TestValidate(t *testing.T) {
 		{"checkpoint>T", "2.5", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 2.5} }},
 		{"decreasing", "0.7", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 0.7} }},
 		{"repeated", "1", func(c *engine.Cell) { c.Observe.Checkpoints = []float64{1, 1} }},
+		{"bin width +Inf", "+Inf", func(c *engine.Cell) { c.Observe.BinWidth = math.Inf(1) }},
 	}
 	for _, tc := range cases {
 		c := good

@@ -22,6 +22,7 @@ import (
 	"github.com/schollz/progressbar/v3"
 	"golang.org/x/term"
 
+	"bbmx/coordinator/sweep"
 	"bbmx/engine"
 	"bbmx/results"
 )
@@ -306,7 +307,7 @@ func addToStore(path string, c engine.Cell, seed, first uint64, recs []engine.Re
 		st.Close()
 		return err
 	}
-	id := fmt.Sprintf("d%d-T%g", c.Model.Dim, c.Horizon)
+	id := sweep.CellID(c.Model.Dim, c.Horizon)
 	err = st.Commit([]results.TaskResult{{CellID: id, Cell: c, Seed: seed, From: first, Records: recs, KeepRecords: true}}, nil)
 	if cerr := st.Close(); err == nil {
 		err = cerr

@@ -121,9 +121,6 @@ func (s *Sweep) checkObserve() *fieldError {
 	if fe := check("observe.window", func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, 2*o.Window }); fe != nil {
 		return fe
 	}
-	if !(o.BinWidth > 0) || math.IsInf(o.BinWidth, 0) {
-		return errAt("observe.bin_width", "histogram bin width must be a positive finite number, got %v", o.BinWidth)
-	}
 	if fe := check("observe.bin_width", func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, o.BinWidth }); fe != nil {
 		return fe
 	}
@@ -154,15 +151,15 @@ func (s *Sweep) checkObserve() *fieldError {
 	return nil
 }
 
-// cellID is a cell's identity, the same string `bbmx sim --store` uses.
-func cellID(dim int, horizon float64) string { return fmt.Sprintf("d%d-T%g", dim, horizon) }
+// CellID is a cell's identity in a store, for sweeps and `bbmx sim --store` alike.
+func CellID(dim int, horizon float64) string { return fmt.Sprintf("d%d-T%g", dim, horizon) }
 
 func (s *Sweep) checkOverrides() *fieldError {
 	seen := map[string]bool{}
 	kept := []Override{}
 	for i, o := range s.Overrides {
 		p := indexKey("grid.override", i)
-		id := cellID(o.Dim, o.Horizon)
+		id := CellID(o.Dim, o.Horizon)
 		if !slices.Contains(s.Dims, o.Dim) {
 			return errAt(joinKey(p, "dim"), "names cell %s, but dimension %d is not in grid.dims %v", id, o.Dim, s.Dims)
 		}
@@ -221,7 +218,7 @@ func (s *Sweep) Cells() []CellSpec {
 				}
 			}
 			cell := engine.Cell{Model: s.model(d), Horizon: t, Observe: o}.WithDefaults()
-			out = append(out, CellSpec{ID: cellID(d, t), Cell: cell, Replicates: s.replicates(d, t)})
+			out = append(out, CellSpec{ID: CellID(d, t), Cell: cell, Replicates: s.replicates(d, t)})
 		}
 	}
 	return out

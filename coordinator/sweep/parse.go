@@ -6,6 +6,7 @@ import (
 	"io"
 	"math"
 	"os"
+	"slices"
 	"sort"
 	"strings"
 
@@ -126,7 +127,7 @@ func checkKeys(doc map[string]any, lines lineTable) *fieldError {
 		known := schema[table]
 		for k, v := range m {
 			p := joinKey(path, k)
-			if !contains(known, k) {
+			if !slices.Contains(known, k) {
 				msg := fmt.Sprintf("unknown key %q", k)
 				if table == "" {
 					msg += fmt.Sprintf(" (a sweep file has: %s)", strings.Join(known, ", "))
@@ -171,15 +172,6 @@ func checkKeys(doc map[string]any, lines lineTable) *fieldError {
 		return unknown[i].path < unknown[j].path
 	})
 	return unknown[0]
-}
-
-func contains(list []string, s string) bool {
-	for _, x := range list {
-		if x == s {
-			return true
-		}
-	}
-	return false
 }
 
 // defaults returns a sweep with every optional setting at its default.
