@@ -340,15 +340,12 @@ func compute(ctx context.Context, t *pb.Task, progress func(int64)) (*pb.SubmitR
 	if err := json.Unmarshal(t.CellJson, &cell); err != nil {
 		return nil, fmt.Errorf("task %s: bad cell settings: %w", t.TaskId, err)
 	}
-	cell = cell.WithDefaults()
-	if err := cell.Validate(); err != nil {
-		return nil, fmt.Errorf("task %s: %w", t.TaskId, err)
-	}
+	// The engine applies the cell's defaults and validates it.
 	req := &pb.SubmitRequest{TaskId: t.TaskId, Attempt: t.Attempt}
 	if t.SplitAt > 0 {
 		p, err := engine.SimulatePartContext(ctx, cell, t.Seed, t.From, t.SplitAt, t.RootFrom, t.RootTo)
 		if err != nil {
-			return nil, err
+			return nil, fmt.Errorf("task %s: %w", t.TaskId, err)
 		}
 		if p.Roots != t.Roots {
 			return nil, fmt.Errorf("task %s: replicate %d has %d particles at %v here, the coordinator counted %d (different bbmx builds?)",
@@ -359,7 +356,7 @@ func compute(ctx context.Context, t *pb.Task, progress func(int64)) (*pb.SubmitR
 	}
 	recs, err := engine.Batch{Cell: cell, Seed: t.Seed, From: t.From, To: t.To, Threads: 1, Progress: progress}.Run(ctx)
 	if err != nil {
-		return nil, err
+		return nil, fmt.Errorf("task %s: %w", t.TaskId, err)
 	}
 	req.Records = make([][]byte, len(recs))
 	for i := range recs {
