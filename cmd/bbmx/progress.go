@@ -17,8 +17,8 @@ type cellProgress struct {
 }
 
 // progressView redraws one bar per cell on a terminal, or prints a one-line summary
-// now and then elsewhere (batch logs). It runs until stop is closed, then draws once
-// more.
+// now and then elsewhere (batch logs). It runs until stop is closed, then, on a
+// terminal, draws the bars once more.
 func progressView(w io.Writer, every time.Duration, read func() []cellProgress, stop <-chan struct{}, finished chan<- struct{}) {
 	defer close(finished)
 	f, ok := w.(*os.File)
@@ -53,7 +53,7 @@ func progressView(w io.Writer, every time.Duration, read func() []cellProgress, 
 	for {
 		select {
 		case <-stop:
-			if tty || lines > 0 {
+			if tty {
 				draw()
 			}
 			return

@@ -170,9 +170,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	}
 	co.Close()
 	status := co.StatusNow()
-	for _, p := range status.Parked {
-		fmt.Fprintf(stderr, "PARKED %s after %d failed attempts: %s\n", p.TaskId, p.Attempts, p.Error)
-	}
+	printParked(stderr, status)
 	digest, err := st.ContentDigest()
 	if err != nil {
 		return err

@@ -88,6 +88,11 @@ func printStatus(w io.Writer, s *pb.StatusReply, brief bool) {
 	for _, c := range s.Cells {
 		fmt.Fprintf(w, "%-14s %12d %12d %8d %8d %8d\n", c.CellId, c.ReplicatesDone, c.ReplicatesWanted, c.TasksTotal-c.TasksDone, c.TasksLeased, c.TasksParked)
 	}
+	printParked(w, s)
+}
+
+// printParked lists the tasks parked after repeated failures, one line each.
+func printParked(w io.Writer, s *pb.StatusReply) {
 	for _, p := range s.Parked {
 		fmt.Fprintf(w, "PARKED %s after %d failed attempts: %s\n", p.TaskId, p.Attempts, p.Error)
 	}
