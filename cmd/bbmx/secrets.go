@@ -279,12 +279,20 @@ func signCert(tmpl, parent *x509.Certificate, pub *ecdsa.PublicKey, key *ecdsa.P
 // writeSecret writes data to path with mode 0600 through a temporary file and a rename,
 // so a reader never sees half a key. Without force an existing path is left alone.
 func writeSecret(path string, data []byte, force bool) error {
+	return writeViaTemp(path, data, 0o600, force)
+}
+
+// writeViaTemp writes data with the given mode to a temporary file beside path, syncs
+// it, and then renames it over path (replace) or links it to path, which fails if path
+// exists, so a file that appeared since a check is never replaced. Readers never see
+// half a file.
+func writeViaTemp(path string, data []byte, mode os.FileMode, replace bool) error {
 	tmp, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".tmp*")
 	if err != nil {
 		return err
 	}
 	defer os.Remove(tmp.Name())
-	if err := tmp.Chmod(0o600); err != nil {
+	if err := tmp.Chmod(mode); err != nil {
 		tmp.Close()
 		return err
 	}
@@ -299,10 +307,9 @@ func writeSecret(path string, data []byte, force bool) error {
 	if err := tmp.Close(); err != nil {
 		return err
 	}
-	if force {
+	if replace {
 		return os.Rename(tmp.Name(), path)
 	}
-	// Link fails if path appeared since the check, instead of replacing it.
 	if err := os.Link(tmp.Name(), path); err != nil {
 		return fmt.Errorf("writing %s: %w", path, err)
 	}

@@ -9,7 +9,6 @@ import (
 	"net/http"
 	"os"
 	"os/signal"
-	"path/filepath"
 	"syscall"
 	"time"
 
@@ -178,20 +177,4 @@ const sweepCompleteMark = "complete"
 
 // writeFileAtomic writes data to path through a temporary file and a rename, so a
 // reader never sees half a file.
-func writeFileAtomic(path string, data []byte) error {
-	tmp, err := os.CreateTemp(filepath.Dir(path), ".bbmx-*")
-	if err != nil {
-		return err
-	}
-	if _, err := tmp.Write(data); err != nil {
-		tmp.Close()
-		os.Remove(tmp.Name())
-		return err
-	}
-	if err := tmp.Close(); err != nil {
-		os.Remove(tmp.Name())
-		return err
-	}
-	os.Chmod(tmp.Name(), 0o644)
-	return os.Rename(tmp.Name(), path)
-}
+func writeFileAtomic(path string, data []byte) error { return writeViaTemp(path, data, 0o644, true) }
