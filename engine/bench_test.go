@@ -32,38 +32,10 @@ func BenchmarkNode(b *testing.B) {
 // interface. Run with -benchtime of a few million iterations.
 func BenchmarkRawVariates(b *testing.B) {
 	for _, d := range []int{1, 2, 3} {
-		b.Run(fmt.Sprintf("engine/d=%d", d), func(b *testing.B) {
-			var r nodeRand
-			var s float64
-			for i := 0; i < b.N; i++ {
-				r.seed(key{uint64(i), uint64(i) * 0x9e3779b97f4a7c15})
-				s += r.ExpFloat64()
-				for j := 0; j < d; j++ {
-					s += r.NormFloat64()
-				}
-			}
-			if s == 0.5 {
-				b.Log(s)
-			}
-			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
-		})
+		b.Run(fmt.Sprintf("engine/d=%d", d), func(b *testing.B) { rawEngine(b, d, false) })
 		// As "engine", with the node's key derived from a parent's as the walk does:
 		// the floor for any walk under this stream's keying.
-		b.Run(fmt.Sprintf("engine+key/d=%d", d), func(b *testing.B) {
-			var r nodeRand
-			var s float64
-			for i := 0; i < b.N; i++ {
-				r.seed(key{uint64(i), uint64(i) * 0x9e3779b97f4a7c15}.child(i & 1))
-				s += r.ExpFloat64()
-				for j := 0; j < d; j++ {
-					s += r.NormFloat64()
-				}
-			}
-			if s == 0.5 {
-				b.Log(s)
-			}
-			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
-		})
+		b.Run(fmt.Sprintf("engine+key/d=%d", d), func(b *testing.B) { rawEngine(b, d, true) })
 		b.Run(fmt.Sprintf("stdlib/d=%d", d), func(b *testing.B) {
 			p := rand.NewPCG(0, 0)
 			r := rand.New(p)
@@ -81,6 +53,29 @@ func BenchmarkRawVariates(b *testing.B) {
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
 		})
 	}
+}
+
+// rawEngine draws, per iteration, one node's exponential and d normals from the engine's
+// generator, reseeded with a fresh key (derived from a parent's as the walk does, if
+// derive is set).
+func rawEngine(b *testing.B, d int, derive bool) {
+	var r nodeRand
+	var s float64
+	for i := 0; i < b.N; i++ {
+		k := key{uint64(i), uint64(i) * 0x9e3779b97f4a7c15}
+		if derive {
+			k = k.child(i & 1)
+		}
+		r.seed(k)
+		s += r.ExpFloat64()
+		for j := 0; j < d; j++ {
+			s += r.NormFloat64()
+		}
+	}
+	if s == 0.5 {
+		b.Log(s)
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
 }
 
 // skeleton is the walk with everything but the keys, the lifetimes and the recursion
