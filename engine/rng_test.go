@@ -50,32 +50,82 @@ func TestGeneratorMatchesStdlib(t *testing.T) {
 	t.Logf("slow-path draws compared: exponential %d, normal %d", slowExp, slowNorm)
 }
 
-// TestChildKeysLookIndependent: the first uniform drawn by a node, its children and a
-// grandchild are uncorrelated (Pearson r within 4.5 standard errors, 1/sqrt(n) under
-// independence: a false alarm rate of about 7e-6 per pair, 4e-5 for the test) and
-// uniform (chi-square on 64 bins: 63 degrees of freedom, mean 63 and sd sqrt(126),
-// limit mean + 6 sd: a false alarm rate of about 1.5e-6 per node by the Wilson–Hilferty
-// approximation, derived). Deterministic: fixed keys. Guards the child key derivation, whose
-// halves are computed side by side from both parent halves.
-func TestChildKeysLookIndependent(t *testing.T) {
-	const n = 200000
-	first := func(k key) float64 {
-		var r nodeRand
-		r.seed(k)
-		return r.Float64()
+// TestZigguratFromWordsMatchesStdlib: the walk's exponential and normal, fed the words
+// of a PCG generator and drawing their rare rejection steps from it, must equal
+// math/rand/v2's ExpFloat64 and NormFloat64 on the same generator bit for bit: the
+// ziggurat code split into a fast path on a given word and a slow path is the standard
+// library's, so its laws are exactly exponential and normal given uniform words.
+// Deterministic; the rare branches are counted so the test fails if they are never hit.
+func TestZigguratFromWordsMatchesStdlib(t *testing.T) {
+	var slowExp, slowNorm int
+	for s := uint64(0); s < 1000; s++ {
+		k := key{hi: mix64(s), lo: mix64(s + 0x5678)}
+		var n nodeRand
+		n.seed(k)
+		r := rand.New(rand.NewPCG(k.hi, k.lo))
+		for i := 0; i < 1000; i++ {
+			u := n.Uint64()
+			if i%2 == 0 {
+				if uint32(u) >= zigKe[uint8(u>>32)] {
+					slowExp++
+				}
+				if a, b := expFromWord(u, &n), r.ExpFloat64(); a != b {
+					t.Fatalf("seed %d draw %d: exponential %v, stdlib %v", s, i, a, b)
+				}
+			} else {
+				if absInt32(int32(u)) >= zigKn[u>>32&0x7F] {
+					slowNorm++
+				}
+				if a, b := normFromWord(u, &n), r.NormFloat64(); a != b {
+					t.Fatalf("seed %d draw %d: normal %v, stdlib %v", s, i, a, b)
+				}
+			}
+		}
 	}
+	if slowExp < 500 || slowNorm < 500 {
+		t.Errorf("rare branches hit too seldom to be checked: exponential %d, normal %d", slowExp, slowNorm)
+	}
+}
+
+// TestNodeWordsLookIndependent: the random words of a node (its lifetime's word and its
+// first two normals' words), of its two children and of a grandchild are uncorrelated
+// (Pearson r within 4.5 standard errors, 1/sqrt(n) under independence: a false alarm
+// rate of about 7e-6 per pair, 2e-3 for the 264 pairs of distinct words) and uniform (chi-square on 64
+// bins: 63 degrees of freedom, mean 63 and sd sqrt(126), limit mean + 6 sd: about
+// 1.5e-6 per series by the Wilson–Hilferty approximation, derived). Each word is read
+// twice: its top 53 bits, and the 40 low bits the ziggurat's fast path reads.
+// Deterministic: fixed keys. Guards the child key derivation and the use of key bits as
+// draws (random-stream version 3).
+func TestNodeWordsLookIndependent(t *testing.T) {
+	const n = 200000
+	type series struct {
+		name string
+		u    []float64
+	}
+	var all []series
 	names := []string{"parent", "child 0", "child 1", "grandchild 0.1"}
-	u := make([][]float64, len(names))
-	for i := range u {
-		u[i] = make([]float64, n)
+	words := []string{"lifetime", "normal 0", "normal 1"}
+	for _, nm := range names {
+		for _, wd := range words {
+			all = append(all, series{name: nm + " " + wd + " (top bits)", u: make([]float64, n)},
+				series{name: nm + " " + wd + " (low 40 bits)", u: make([]float64, n)})
+		}
 	}
 	for j := 0; j < n; j++ {
 		p := rootKey(7, 11, uint64(j))
-		u[0][j], u[1][j], u[2][j], u[3][j] = first(p), first(p.child(0)), first(p.child(1)), first(p.child(0).child(1))
+		nodes := []key{p, p.child(0), p.child(1), p.child(0).child(1)}
+		c := 0
+		for _, k := range nodes {
+			for _, w := range []uint64{k.hi, normalWord(k.lo, 0), normalWord(k.lo, 1)} {
+				all[c].u[j] = float64(w>>11) / (1 << 53)
+				all[c+1].u[j] = float64(w&(1<<40-1)) / (1 << 40)
+				c += 2
+			}
+		}
 	}
-	for a := range u {
+	for a := range all {
 		var bins [64]float64
-		for _, x := range u[a] {
+		for _, x := range all[a].u {
 			bins[int(x*64)]++
 		}
 		var chi2 float64
@@ -83,18 +133,21 @@ func TestChildKeysLookIndependent(t *testing.T) {
 			chi2 += (c - n/64.0) * (c - n/64.0) / (n / 64.0)
 		}
 		if chi2 > 63+6*math.Sqrt(126) {
-			t.Errorf("%s: first uniforms not uniform, chi-square %.1f on 63 degrees of freedom", names[a], chi2)
+			t.Errorf("%s: not uniform, chi-square %.1f on 63 degrees of freedom", all[a].name, chi2)
 		}
-		for b := a + 1; b < len(u); b++ {
+		for b := a + 1; b < len(all); b++ {
+			if b/2 == a/2 {
+				continue // the two views of one word are not independent of each other
+			}
 			var sab, saa, sbb float64
 			for j := 0; j < n; j++ {
-				x, y := u[a][j]-0.5, u[b][j]-0.5
+				x, y := all[a].u[j]-0.5, all[b].u[j]-0.5
 				sab += x * y
 				saa += x * x
 				sbb += y * y
 			}
 			if r := sab / math.Sqrt(saa*sbb); math.Abs(r) > 4.5/math.Sqrt(n) {
-				t.Errorf("%s and %s: correlation %.5f of first uniforms (limit %.5f)", names[a], names[b], r, 4.5/math.Sqrt(n))
+				t.Errorf("%s and %s: correlation %.5f (limit %.5f)", all[a].name, all[b].name, r, 4.5/math.Sqrt(n))
 			}
 		}
 	}

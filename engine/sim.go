@@ -28,18 +28,25 @@ type walker struct {
 	// per-checkpoint constants
 	theta, v, lambda float64
 	zScale, wScale   []float64 // e^{-2 g s} and e^{-(g + lambda^2 sigma^2/2) s} in log form
-	rng              nodeRand
-	levels           [][]float64 // position buffers, one per tree depth
-	part             *Part
+	// the current node's draws (see normalWord): the low half of its key, the number
+	// of normals drawn so far, and the generator of the ziggurat's rejection steps
+	lo     uint64
+	nNorm  uint64
+	rng    nodeRand
+	levels [][]float64 // position buffers, one per tree depth
+	part   *Part
 	// split bookkeeping
 	splitAt   float64
 	from, to  uint64
 	rootIndex uint64 // depth-first index of the next particle alive at splitAt
 	prefix    bool   // whether this part takes contributions of nodes dead before splitAt
 	nodes     uint64 // nodes visited (for cost accounting)
-	// histLo2: a squared radius below which a leaf certainly falls left of the histogram
-	// (0 if the left edge is at or below radius 0)
-	histLo2 float64
+	// hist is the part's histogram with an underflow slot in front (hist[1:] is the
+	// part's); lastBin is the last bin's index as a float; topFloor is the smallest kept
+	// top-K radius once K are kept (-Inf before): the least radius worth offering
+	hist     []uint64
+	lastBin  float64
+	topFloor float64
 	// invBeta = 1/beta, used instead of dividing when that gives the same bits (beta a
 	// power of two, so 1/beta is exact)
 	invBeta      float64
@@ -69,11 +76,7 @@ func newWalker(c Cell) *walker {
 	if frac, _ := math.Frexp(m.Beta); frac == 0.5 {
 		w.invBeta, w.invBetaExact = 1/m.Beta, true
 	}
-	if lo := w.centre + w.hist0; lo > 0 {
-		// 1e-9 relative is far above the rounding of r - centre - hist0 and of lo*lo.
-		lo *= 1 - 1e-9
-		w.histLo2 = lo * lo * (1 - 1e-9)
-	}
+	w.lastBin = float64(w.nBins - 1)
 	g := m.Growth()
 	for _, s := range w.checks {
 		w.zScale = append(w.zScale, -2*g*s)
@@ -169,8 +172,10 @@ func (w *walker) poll() {
 }
 
 func (w *walker) newPart(rep uint64, splitAt float64, from, to uint64) *Part {
+	w.hist = make([]uint64, w.nBins+1)
+	w.topFloor = math.Inf(-1)
 	p := &Part{Replicate: rep, SplitAt: splitAt, From: from, To: to, top: topK{k: w.c.Observe.TopK},
-		hist: make([]uint64, w.nBins), checks: make([]partCheck, len(w.checks))}
+		hist: w.hist[1:], checks: make([]partCheck, len(w.checks))}
 	for i := range p.checks {
 		p.checks[i].zdir = make([]exactsum.Acc, w.nDirs)
 	}
@@ -205,8 +210,7 @@ func (w *walker) run(seed, rep uint64, splitAt float64, from, to uint64) (*Part,
 // prefix part only) their checkpoint crossings; nodes alive at splitAt are numbered in
 // depth-first order and those in [from, to) are walked in full.
 func (w *walker) top(k key, birth float64, pos []float64, depth int) {
-	w.rng.seed(k)
-	death := birth + w.rng.ExpFloat64()/w.beta
+	death := birth + w.start(k)
 	if death > w.splitAt {
 		i := w.rootIndex
 		w.rootIndex++
@@ -222,6 +226,17 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 	}
 }
 
+// start makes k the current node (its draws come next) and returns its lifetime.
+func (w *walker) start(k key) float64 {
+	w.rng.seed(k)
+	w.lo, w.nNorm = k.lo, 0
+	e := expFromWord(k.hi, &w.rng)
+	if w.invBetaExact {
+		return e * w.invBeta
+	}
+	return e / w.beta
+}
+
 // node walks the full subtree of the node with key k, born at birth at position pos.
 // The last child is walked by the loop rather than by a call, so the recursion depth
 // and the call count are those of the other children only.
@@ -232,11 +247,10 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 		if w.nodes%pollNodes == 0 {
 			w.poll()
 		}
-		w.rng.seed(k)
-		u := w.rng.Uint64() // the exponential's ziggurat fast path, written out
+		w.rng.seed(k) // start's body written out (start does not inline)
 		var e float64
-		if j, i := uint32(u), uint8(u>>32); j < zigKe[i] {
-			e = float64(j) * float64(zigWe[i])
+		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
+			e = float64(uint32(u)) * float64(zigWe[uint8(u>>32)])
 		} else {
 			e = w.rng.expSlow(u)
 		}
@@ -249,41 +263,41 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 		end := w.level(depth + 1)
 		until := min(death, w.horizon)
 		if birth > w.lastCheck {
-			// No checkpoint to cut at (most nodes): one increment. This is move's body
-			// written out on purpose (move does not inline); keep the two the same.
+			// No checkpoint to cut at (most nodes): one increment, normals 0 to d-1.
+			// This is move's body written out on purpose (move does not inline); keep
+			// the two the same.
 			end = end[:len(pos)]
 			if dt := until - birth; dt > 0 {
 				sd := w.sigma * math.Sqrt(dt)
-				r := w.rng
+				u := k.lo
 				for i := range pos {
-					u := r.Uint64()
-					j := int32(u)
-					s := u >> 32 & 0x7F
+					if i > 0 {
+						u = mix64(k.lo + uint64(i)*normalGamma)
+					}
 					var z float64
-					if absInt32(j) < zigKn[s] {
+					if j, s := int32(u), u>>32&0x7F; absInt32(j) < zigKn[s] {
 						z = float64(j) * float64(zigWn[s])
 					} else {
-						t := r
-						z = t.normSlow(u)
-						r = t
+						z = w.rng.normSlow(u)
 					}
 					end[i] = pos[i] + sd*z
 				}
-				w.rng = r
 			} else {
 				copy(end, pos)
 			}
 		} else {
+			w.lo, w.nNorm = k.lo, 0
 			w.advance(birth, until, pos, end, true)
 		}
 		if death > w.horizon {
 			w.leaf(end)
 			return
 		}
+		ka, kb := k.mixes()
 		for i := 0; i < last; i++ {
-			w.node(k.child(i), death, end, depth+1)
+			w.node(childOf(ka, kb, i), death, end, depth+1)
 		}
-		k, birth, pos, depth = k.child(last), death, end, depth+1
+		k, birth, pos, depth = childOf(ka, kb, last), death, end, depth+1
 	}
 }
 
@@ -311,9 +325,9 @@ func (w *walker) advance(birth, until float64, pos, end []float64, record bool) 
 	w.move(src, end, until-t)
 }
 
-// move sets end = pos + an exact N(0, sigma^2 dt I_d) increment (end = pos if dt <= 0);
-// end and pos have the same length and may be the same slice. The ziggurat's fast path
-// is written out here (NormFloat64 is too large to inline); rare cases go to normSlow.
+// move sets end = pos + an exact N(0, sigma^2 dt I_d) increment (end = pos if dt <= 0,
+// drawing nothing); end and pos have the same length and may be the same slice. The
+// normals are the current node's next ones (see normalWord).
 func (w *walker) move(pos, end []float64, dt float64) {
 	end = end[:len(pos)]
 	if dt <= 0 {
@@ -321,22 +335,11 @@ func (w *walker) move(pos, end []float64, dt float64) {
 		return
 	}
 	sd := w.sigma * math.Sqrt(dt)
-	r := w.rng // a local copy stays in registers
 	for i := range pos {
-		u := r.Uint64()
-		j := int32(u)
-		s := u >> 32 & 0x7F
-		var z float64
-		if absInt32(j) < zigKn[s] {
-			z = float64(j) * float64(zigWn[s])
-		} else {
-			t := r // keeps r's address untaken, so r can live in registers
-			z = t.normSlow(u)
-			r = t
-		}
-		end[i] = pos[i] + sd*z
+		u := normalWord(w.lo, w.nNorm)
+		w.nNorm++
+		end[i] = pos[i] + sd*normFromWord(u, &w.rng)
 	}
-	w.rng = r
 }
 
 // checkpoint adds one particle at position x to checkpoint ci's sums:
@@ -370,10 +373,10 @@ func (w *walker) checkpoint(ci int, x []float64) {
 	}
 }
 
-// leaf records a particle alive at the horizon at position x. A particle whose squared
-// radius is safely below both the histogram's left edge and the smallest kept top-K
-// radius only counts towards N_T: it would change nothing else, so its radius is not
-// computed (the margin in histLo2 keeps this exact whatever the rounding).
+// leaf records a particle alive at the horizon at position x. Its branches are all
+// predictable (the top-K test fails for all but a handful of leaves, and the histogram's
+// bin is chosen without a branch, leaves left of it going to an underflow slot), so the
+// walk need not wait for the leaf's radius before going on to the next node.
 func (w *walker) leaf(x []float64) {
 	p := w.part
 	p.pop++
@@ -381,19 +384,17 @@ func (w *walker) leaf(x []float64) {
 	for _, xi := range x {
 		rr += xi * xi
 	}
-	if rr < w.histLo2 && len(p.top.items) == p.top.k && rr < p.top.items[0].r*p.top.items[0].r*(1-1e-9) {
-		return
-	}
 	r := math.Sqrt(rr)
-	if p.top.worthy(r) {
+	if r >= w.topFloor {
 		p.top.offer(r, x)
-	}
-	b := (r - w.centre - w.hist0) * w.invBin
-	if b >= 0 {
-		i := int(b)
-		if b >= float64(w.nBins-1) {
-			i = w.nBins - 1
+		if len(p.top.items) == p.top.k {
+			w.topFloor = p.top.items[0].r
 		}
-		p.hist[i]++
 	}
+	b := min((r-w.centre-w.hist0)*w.invBin, w.lastBin)
+	i := int(b) + 1
+	if b < 0 {
+		i = 0 // the underflow slot
+	}
+	w.hist[i]++
 }
