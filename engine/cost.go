@@ -26,8 +26,8 @@ const AbsurdSweepNodes = 1e15
 // BENCHMARKS.md ("per-replicate overhead").
 func NominalReplicateSeconds(c Cell) float64 {
 	c = c.WithDefaults()
-	perCheckpoint := 2e-6 + 1e-6*float64(c.NumDirections())
-	return c.Model.ExpectedNodes(c.Horizon)*NominalNodeSeconds + 5e-6 + perCheckpoint*float64(len(c.Observe.Checkpoints))
+	perCheckpoint := 2e-6 + float64(1e-6*float64(c.NumDirections()))
+	return float64(c.Model.ExpectedNodes(c.Horizon)*NominalNodeSeconds) + 5e-6 + float64(perCheckpoint*float64(len(c.Observe.Checkpoints)))
 }
 
 // RecordBytes estimates the size of one replicate record of cell c, for bounding the

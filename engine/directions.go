@@ -24,8 +24,8 @@ func DirectionGrid(d, n int) []float64 {
 	case 3:
 		golden := math.Pi * (3 - math.Sqrt(5))
 		for j := 0; j < n; j++ {
-			z := 1 - (2*float64(j)+1)/float64(n)
-			r := math.Sqrt(1 - z*z)
+			z := 1 - (float64(2*float64(j))+1)/float64(n)
+			r := math.Sqrt(1 - float64(z*z))
 			a := golden * float64(j)
 			g = append(g, r*math.Cos(a), r*math.Sin(a), z)
 		}
@@ -36,7 +36,7 @@ func DirectionGrid(d, n int) []float64 {
 			var s float64
 			for i := range v {
 				v[i] = rng.NormFloat64()
-				s += v[i] * v[i]
+				s += float64(v[i] * v[i])
 			}
 			s = math.Sqrt(s)
 			for i := range v {

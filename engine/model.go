@@ -49,7 +49,7 @@ func (m Model) Validate() error {
 }
 
 // Growth is the population growth rate g = beta (k - 1); E[N_t] = e^{g t}.
-func (m Model) Growth() float64 { return m.Beta * float64(m.Children-1) }
+func (m Model) Growth() float64 { return float64(m.Beta * float64(m.Children-1)) }
 
 // Speed is the front speed v = sigma sqrt(2 g).
 func (m Model) Speed() float64 { return m.Sigma * math.Sqrt(2*m.Growth()) }
@@ -66,7 +66,7 @@ func (m Model) Centring(t float64) float64 {
 	if t <= 0 {
 		return 0
 	}
-	return m.Speed()*t + m.LogCoefficient()*math.Log(t)
+	return float64(m.Speed()*t) + float64(m.LogCoefficient()*math.Log(t))
 }
 
 // MeanPopulation is E[N_t] = e^{g t}.
@@ -77,5 +77,5 @@ func (m Model) MeanPopulation(t float64) float64 { return math.Exp(m.Growth() * 
 // (k e^{g t} - 1)/(k - 1), about (k/(k-1)) e^{g t}.
 func (m Model) ExpectedNodes(t float64) float64 {
 	k := float64(m.Children)
-	return (k*math.Exp(m.Growth()*t) - 1) / (k - 1)
+	return (float64(k*math.Exp(m.Growth()*t)) - 1) / (k - 1)
 }

@@ -81,7 +81,7 @@ func DecodePart(c Cell, b []byte) (*Part, error) {
 		var sq float64
 		for j := range pos {
 			pos[j] = r.F64()
-			sq += pos[j] * pos[j]
+			sq += float64(pos[j] * pos[j])
 		}
 		if r.Err == nil && (!(rad >= 0) || math.IsInf(rad, 0) || math.IsInf(sq, 0) || math.IsNaN(sq) ||
 			math.Abs(math.Sqrt(sq)-rad) > 1e-9*(1+rad)) {

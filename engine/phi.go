@@ -23,11 +23,11 @@ func PhiScaled(d int, z float64) float64 {
 		if z < 1e-8 {
 			return (1 - z) * (1 + z*z/6) // avoid 0/0; error O(z^3)
 		}
-		return -math.Expm1(-2*z) / (2 * z)
+		return -math.Expm1(-float64(2*z)) / float64(2*z)
 	}
-	b := float64(d) / 2
+	b := float64(float64(d) / 2) // rounded: no fused multiply-add with the next line
 	nu := b - 1
-	if z > 20 && z > 2*nu*nu {
+	if z > 20 && z > float64(2*nu*nu) {
 		return phiAsymptotic(b, nu, z)
 	}
 	return phiSeries(b, z)
@@ -40,7 +40,7 @@ func phiSeries(b, z float64) float64 {
 	term, sum := 1.0, 1.0
 	scale := 0.0 // log of the factor taken out of term and sum
 	for k := 0.0; ; k++ {
-		term *= q / ((k + 1) * (b + k))
+		term = float64(term * (q / ((k + 1) * (b + k))))
 		sum += term
 		if term < 1e-17*sum {
 			break
@@ -58,11 +58,11 @@ func phiSeries(b, z float64) float64 {
 // a_k(nu) = prod_{j=1..k} (4 nu^2 - (2j-1)^2) / (k! 8^k); the e^{-2z} companion term is
 // below double precision for z > 20.
 func phiAsymptotic(b, nu, z float64) float64 {
-	mu := 4 * nu * nu
+	mu := float64(4 * nu * nu)
 	term, sum := 1.0, 1.0
 	for k := 1; k < 60; k++ {
 		odd := float64(2*k - 1)
-		next := -term * (mu - odd*odd) / (float64(k) * 8 * z)
+		next := -term * (mu - float64(odd*odd)) / (float64(k) * 8 * z)
 		if math.Abs(next) >= math.Abs(term) || next == 0 {
 			break
 		}
@@ -74,5 +74,5 @@ func phiAsymptotic(b, nu, z float64) float64 {
 	}
 	lg, _ := math.Lgamma(b)
 	// Gamma(b) (2/z)^nu (2 pi z)^{-1/2}
-	return sum * math.Exp(lg+nu*math.Log(2/z)-0.5*math.Log(2*math.Pi*z))
+	return sum * math.Exp(lg+float64(nu*math.Log(2/z))-float64(0.5*math.Log(2*math.Pi*z)))
 }

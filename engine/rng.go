@@ -170,7 +170,7 @@ func (n *nodeRand) expSlow(u uint64) float64 {
 		if i == 0 {
 			return re - math.Log(n.Float64())
 		}
-		if zigFe[i]+float32(n.Float64())*(zigFe[i-1]-zigFe[i]) < float32(math.Exp(-x)) {
+		if zigFe[i]+float32(float32(n.Float64())*(zigFe[i-1]-zigFe[i])) < float32(math.Exp(-x)) {
 			return x
 		}
 		u = n.Uint64()
@@ -206,7 +206,7 @@ func (n *nodeRand) normSlow(u uint64) float64 {
 		}
 		if i == 0 {
 			for {
-				x = -math.Log(n.Float64()) * (1.0 / rn)
+				x = float64(-math.Log(n.Float64()) * (1.0 / rn))
 				y := -math.Log(n.Float64())
 				if y+y >= x*x {
 					break
@@ -217,7 +217,7 @@ func (n *nodeRand) normSlow(u uint64) float64 {
 			}
 			return -rn - x
 		}
-		if zigFn[i]+float32(n.Float64())*(zigFn[i-1]-zigFn[i]) < float32(math.Exp(-.5*x*x)) {
+		if zigFn[i]+float32(float32(n.Float64())*(zigFn[i-1]-zigFn[i])) < float32(math.Exp(-.5*x*x)) {
 			return x
 		}
 		u = n.Uint64()

@@ -80,7 +80,7 @@ func newWalker(c Cell) *walker {
 	g := m.Growth()
 	for _, s := range w.checks {
 		w.zScale = append(w.zScale, -2*g*s)
-		w.wScale = append(w.wScale, -(g+w.lambda*w.lambda*m.Sigma*m.Sigma/2)*s)
+		w.wScale = append(w.wScale, -(g+float64(w.lambda*w.lambda*m.Sigma*m.Sigma/2))*s)
 	}
 	return w
 }
@@ -232,7 +232,7 @@ func (w *walker) start(k key) float64 {
 	w.lo, w.nNorm = k.lo, 0
 	e := expFromWord(k.hi, &w.rng)
 	if w.invBetaExact {
-		return e * w.invBeta
+		return float64(e * w.invBeta)
 	}
 	return e / w.beta
 }
@@ -255,7 +255,7 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 			e = w.rng.expSlow(u)
 		}
 		if w.invBetaExact {
-			e *= w.invBeta // equal to e / beta: beta is a power of two
+			e = float64(e * w.invBeta) // equal to e / beta: beta is a power of two
 		} else {
 			e /= w.beta
 		}
@@ -280,7 +280,7 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 					} else {
 						z = w.rng.normSlow(u)
 					}
-					end[i] = pos[i] + sd*z
+					end[i] = pos[i] + float64(sd*z)
 				}
 			} else {
 				copy(end, pos)
@@ -338,7 +338,7 @@ func (w *walker) move(pos, end []float64, dt float64) {
 	for i := range pos {
 		u := normalWord(w.lo, w.nNorm)
 		w.nNorm++
-		end[i] = pos[i] + sd*normFromWord(u, &w.rng)
+		end[i] = pos[i] + float64(sd*normFromWord(u, &w.rng))
 	}
 }
 
@@ -351,25 +351,25 @@ func (w *walker) checkpoint(ci int, x []float64) {
 	s := w.checks[ci]
 	var rr float64
 	for _, xi := range x {
-		rr += xi * xi
+		rr += float64(xi * xi)
 	}
 	rho := math.Sqrt(rr)
-	tr := w.theta * rho
+	tr := float64(w.theta * rho)
 	d := float64(w.d)
 	// Sphere averages: avg exp(theta<X,u>) = Phi_d(theta rho),
 	// avg <X,u> exp(theta<X,u>) = rho (theta rho / d) Phi_{d+2}(theta rho).
 	e := math.Exp(tr + w.zScale[ci])
-	pc.z.Add(e * (w.v*s*PhiScaled(w.d, tr) - rho*(tr/d)*PhiScaled(w.d+2, tr)))
-	lr := w.lambda * rho
+	pc.z.Add(e * (float64(w.v*s*PhiScaled(w.d, tr)) - float64(rho*(tr/d)*PhiScaled(w.d+2, tr))))
+	lr := float64(w.lambda * rho)
 	pc.w.Add(math.Exp(lr+w.wScale[ci]) * PhiScaled(w.d, lr))
-	vs := w.v * s
+	vs := float64(w.v * s)
 	for j := 0; j < w.nDirs; j++ {
 		u := w.dirs[j*w.d : (j+1)*w.d]
 		var p float64
 		for i, xi := range x {
-			p += xi * u[i]
+			p += float64(xi * u[i])
 		}
-		pc.zdir[j].Add((vs - p) * math.Exp(w.theta*p+w.zScale[ci]))
+		pc.zdir[j].Add((vs - p) * math.Exp(float64(w.theta*p)+w.zScale[ci]))
 	}
 }
 
@@ -382,7 +382,7 @@ func (w *walker) leaf(x []float64) {
 	p.pop++
 	var rr float64
 	for _, xi := range x {
-		rr += xi * xi
+		rr += float64(xi * xi)
 	}
 	r := math.Sqrt(rr)
 	if r >= w.topFloor {

@@ -214,7 +214,7 @@ func (s *Sketch) MeanShift() (mean, se float64) {
 	n := float64(s.N)
 	mean = s.Shift[0].Float64() / n
 	if s.N > 1 {
-		v := (s.Shift[1].Float64() - n*mean*mean) / (n - 1)
+		v := (s.Shift[1].Float64() - float64(n*mean*mean)) / (n - 1)
 		se = math.Sqrt(math.Max(v, 0) / n)
 	}
 	return mean, se
