@@ -64,7 +64,7 @@ func rawEngine(b *testing.B, d int) {
 		r.seed(k)
 		s += expFromWord(k.hi, &r)
 		for j := 0; j < d; j++ {
-			s += normFromWord(normalWord(k.lo, uint64(j)), &r)
+			s += normFromWord(normalWord(k, uint64(j)), &r)
 		}
 	}
 	if s == 0.5 {

@@ -77,17 +77,37 @@ func childOf(a, b uint64, i int) key {
 // output function off the walk's critical path:
 //   - the lifetime's standard exponential comes from the high half (the ziggurat's
 //     fast path reads 40 of its bits);
-//   - the n-th standard normal (n = 0, 1, ...) from the word normalWord(lo, n): the low
-//     half itself for n = 0, then the SplitMix64 sequence mix64(lo + n*normalGamma);
+//   - the n-th standard normal (n = 0, 1, ...) from the word normalWord(k, n): the low
+//     half for n = 0; for n = 1 the bits the first two words leave unread (24 of the
+//     high half, 25 of the low half; the ziggurat reads 39); from n = 2 on the
+//     SplitMix64 sequence mix64(lo + n*normalGamma). So a node in d <= 2 needs no
+//     hashing beyond its key;
 //   - the ziggurat's rare rejection steps (about 1 % of draws) take further uniforms
 //     from a nodeRand seeded with the key, in the order they occur.
 
-// normalWord is the random word of a node's n-th normal; lo is the low half of its key.
-func normalWord(lo, n uint64) uint64 {
-	if n == 0 {
-		return lo
+// normalWord is the random word of the n-th normal of the node with key k.
+func normalWord(k key, n uint64) uint64 {
+	switch n {
+	case 0:
+		return k.lo
+	case 1:
+		return spareWord(k)
 	}
-	return mix64(lo + n*normalGamma)
+	return mix64(k.lo + n*normalGamma)
+}
+
+// spareWord is normalWord(k, 1): the high half's 24 bits above the exponential's 40,
+// then the low half's 25 bits above normal 0's 39.
+func spareWord(k key) uint64 { return k.hi>>40 | k.lo>>39<<24 }
+
+// normal2Gamma is 2*normalGamma mod 2^64: normalWord(k, 2) = mix64(k.lo + normal2Gamma).
+const normal2Gamma = 0xb47c73972972b7b6
+
+// zigNormal is the ziggurat's fast path on word u: the normal and whether it stands;
+// if not, the draw is normSlow(u) instead.
+func zigNormal(u uint64) (float64, bool) {
+	j, s := int32(u), u>>32&0x7F
+	return float64(j) * float64(zigWn[s]), absInt32(j) < zigKn[s]
 }
 
 // expFromWord is the standard exponential whose ziggurat fast path reads u; the rare

@@ -95,14 +95,15 @@ func TestZigguratFromWordsMatchesStdlib(t *testing.T) {
 }
 
 // TestNodeWordsLookIndependent: the random words of a node (its lifetime's word and its
-// first two normals' words), of its two children and of a grandchild are uncorrelated
+// first three normals' words), of its two children and of a grandchild are uncorrelated
 // (Pearson r within 4.5 standard errors, 1/sqrt(n) under independence: a false alarm
-// rate of about 7e-6 per pair, 2e-3 for the 264 pairs of distinct words) and uniform (chi-square on 64
-// bins: 63 degrees of freedom, mean 63 and sd sqrt(126), limit mean + 6 sd: about
-// 1.5e-6 per series by the Wilson–Hilferty approximation, derived). Each word is read
-// twice: its top 53 bits, and the 40 low bits the ziggurat's fast path reads.
-// Deterministic: fixed keys. Guards the child key derivation and the use of key bits as
-// draws (random-stream version 3).
+// rate of about 7e-6 per pair, 3e-3 for the 480 pairs of distinct words) and uniform
+// (chi-square on 64 bins: 63 degrees of freedom, mean 63 and sd sqrt(126), limit mean +
+// 6 sd: about 1.5e-6 per series by the Wilson–Hilferty approximation, derived). Each
+// word is read twice, as the ziggurat's fast path reads it: its low 32 bits (the value
+// within a layer) and its low 40 bits (whose top bits choose the layer). Deterministic:
+// fixed keys. Guards the child key derivation and the use of key bits as draws
+// (random-stream version 3).
 func TestNodeWordsLookIndependent(t *testing.T) {
 	const n = 200000
 	type series struct {
@@ -111,10 +112,10 @@ func TestNodeWordsLookIndependent(t *testing.T) {
 	}
 	var all []series
 	names := []string{"parent", "child 0", "child 1", "grandchild 0.1"}
-	words := []string{"lifetime", "normal 0", "normal 1"}
+	words := []string{"lifetime", "normal 0", "normal 1", "normal 2"}
 	for _, nm := range names {
 		for _, wd := range words {
-			all = append(all, series{name: nm + " " + wd + " (top bits)", u: make([]float64, n)},
+			all = append(all, series{name: nm + " " + wd + " (low 32 bits)", u: make([]float64, n)},
 				series{name: nm + " " + wd + " (low 40 bits)", u: make([]float64, n)})
 		}
 	}
@@ -123,8 +124,8 @@ func TestNodeWordsLookIndependent(t *testing.T) {
 		nodes := []key{p, p.child(0), p.child(1), p.child(0).child(1)}
 		c := 0
 		for _, k := range nodes {
-			for _, w := range []uint64{k.hi, normalWord(k.lo, 0), normalWord(k.lo, 1)} {
-				all[c].u[j] = float64(w>>11) / (1 << 53)
+			for _, w := range []uint64{k.hi, normalWord(k, 0), normalWord(k, 1), normalWord(k, 2)} {
+				all[c].u[j] = float64(w&(1<<32-1)) / (1 << 32)
 				all[c+1].u[j] = float64(w&(1<<40-1)) / (1 << 40)
 				c += 2
 			}
