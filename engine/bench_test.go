@@ -14,11 +14,11 @@ func BenchmarkNode(b *testing.B) {
 			w := newWalker(c)
 			var nodes uint64
 			for i := 0; i < b.N; i++ {
-				w.nodes = 0
-				if _, err := w.run(1, uint64(i), 0, 0, 1); err != nil {
+				p, err := w.run(1, uint64(i), 0, 0, 1)
+				if err != nil {
 					b.Fatal(err)
 				}
-				nodes += w.nodes
+				nodes += 2*p.pop - 1 // a binary tree with pop leaves
 			}
 			b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(nodes), "ns/node")
 		})

@@ -42,7 +42,6 @@ type walker struct {
 	from, to  uint64
 	rootIndex uint64 // depth-first index of the next particle alive at splitAt
 	prefix    bool   // whether this part takes contributions of nodes dead before splitAt
-	nodes     uint64 // nodes visited (for cost accounting)
 	// hist is the part's histogram with an underflow slot in front (hist[1:] is the
 	// part's); lastBin is the last bin's index as a float; topFloor is the smallest kept
 	// top-K radius once K are kept (-Inf before): the least radius worth offering
@@ -53,7 +52,7 @@ type walker struct {
 	// power of two, so 1/beta is exact)
 	invBeta      float64
 	invBetaExact bool
-	// done, when closed, stops the walk (see pollNodes); aborted says it was stopped
+	// done, when closed, stops the walk (see pollLeaves); aborted says it was stopped
 	done    <-chan struct{}
 	aborted bool
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
@@ -102,7 +101,7 @@ func SimulatePart(c Cell, seed, rep uint64, splitAt float64, from, to uint64) (*
 }
 
 // SimulatePartContext is SimulatePart that stops soon after ctx is cancelled (within
-// pollNodes tree nodes, milliseconds), returning ctx.Err(): one part may be minutes of
+// pollLeaves leaves, milliseconds), returning ctx.Err(): one part may be minutes of
 // work, too long to finish after a worker is told to stop.
 func SimulatePartContext(ctx context.Context, c Cell, seed, rep uint64, splitAt float64, from, to uint64) (*Part, error) {
 	c = c.WithDefaults()
@@ -152,9 +151,10 @@ func CountRoots(c Cell, seed, rep uint64, splitAt float64) (uint64, error) {
 	return w.rootIndex, nil
 }
 
-// pollNodes: the walk looks at its done channel once per this many nodes (a few
-// milliseconds of work), so a cancelled task stops promptly even inside one replicate.
-const pollNodes = 1 << 16
+// pollLeaves: the walk looks at its done channel once per this many leaves (at most
+// twice as many nodes, as every branching has at least two children: a few milliseconds
+// of work), so a cancelled task stops promptly even inside one replicate.
+const pollLeaves = 1 << 16
 
 // errWalkStopped is returned by run when the walk was stopped through its done channel;
 // callers report their context's error instead.
@@ -162,7 +162,7 @@ var errWalkStopped = errors.New("walk stopped")
 
 // poll stops the walk if the done channel is closed: it sets aborted and moves the
 // horizon to -Inf, so every node still to be visited is a leaf at once and the walk
-// unwinds after a few nodes per level, with no test on the hot path beyond the node
+// unwinds after a few nodes per level, with no test on the hot path beyond the leaf
 // count's. run discards the part and restores the horizon.
 func (w *walker) poll() {
 	select {
@@ -258,10 +258,6 @@ type vec struct{ x, y, z float64 }
 func (w *walker) node3(k key, birth float64, p vec, depth int) {
 	last, d := w.k-1, w.d
 	for {
-		w.nodes++
-		if w.nodes%pollNodes == 0 {
-			w.poll()
-		}
 		w.rng.seed(k)
 		var e float64
 		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
@@ -308,7 +304,7 @@ func (w *walker) node3(k key, birth float64, p vec, depth int) {
 		if death > w.horizon {
 			// leaf, written out; the sum of squares in the order leaf adds them (the
 			// unused coordinates add +0, which changes nothing)
-			w.part.pop++
+			w.tally()
 			r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
 			if r >= w.topFloor {
 				s := w.level(depth + 1)[:d]
@@ -319,8 +315,12 @@ func (w *walker) node3(k key, birth float64, p vec, depth int) {
 			return
 		}
 		ka, kb := k.mixes()
-		for i := 0; i < last; i++ {
-			w.node3(childOf(ka, kb, i), death, q, depth+1)
+		if last == 1 { // binary branching: no loop
+			w.node3(childOf(ka, kb, 0), death, q, depth+1)
+		} else {
+			for i := 0; i < last; i++ {
+				w.node3(childOf(ka, kb, i), death, q, depth+1)
+			}
 		}
 		k, birth, p, depth = childOf(ka, kb, last), death, q, depth+1
 	}
@@ -361,10 +361,6 @@ func (w *walker) start(k key) float64 {
 func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 	last := w.k - 1
 	for {
-		w.nodes++
-		if w.nodes%pollNodes == 0 {
-			w.poll()
-		}
 		w.rng.seed(k) // start's body written out (start does not inline)
 		var e float64
 		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
@@ -493,7 +489,7 @@ func (w *walker) checkpoint(ci int, x []float64) {
 // bin is chosen without a branch), so the walk need not wait for the leaf's radius
 // before going on to the next node.
 func (w *walker) leaf(x []float64) {
-	w.part.pop++
+	w.tally()
 	var rr float64
 	for _, xi := range x {
 		rr += float64(xi * xi)
@@ -503,6 +499,13 @@ func (w *walker) leaf(x []float64) {
 		w.offer(r, x)
 	}
 	w.count(r)
+}
+
+// tally counts a leaf, and polls the done channel once every pollLeaves leaves.
+func (w *walker) tally() {
+	if w.part.pop++; w.part.pop%pollLeaves == 0 {
+		w.poll()
+	}
 }
 
 // offer puts a leaf at radius r and position x among the top-K candidates.

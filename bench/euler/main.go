@@ -50,25 +50,28 @@ func main() {
 	reps := flag.Int("replicates", 3, "replicates of each method")
 	flag.Parse()
 	r := rand.New(rand.NewPCG(1, 2))
-	start := time.Now()
-	var eulerN int
-	for i := 0; i < *reps; i++ {
-		_, n := euler(*d, *horizon, *dt, r)
-		eulerN += n
-	}
-	te := time.Since(start).Seconds() / float64(*reps)
 	cell := engine.Cell{Model: engine.Model{Dim: *d, Sigma: 1, Beta: 1, Children: 2}, Horizon: *horizon}
-	start = time.Now()
+	// The two methods take turns, one replicate each, so that a change in the machine's
+	// load during the run falls on both alike.
+	var te, tx float64
+	var eulerN int
 	var exactN uint64
 	for i := 0; i < *reps; i++ {
+		start := time.Now()
+		_, n := euler(*d, *horizon, *dt, r)
+		te += time.Since(start).Seconds()
+		eulerN += n
+		start = time.Now()
 		rec, err := engine.Simulate(cell, 1, uint64(i))
+		tx += time.Since(start).Seconds()
 		if err != nil {
 			fmt.Fprintln(os.Stderr, err)
 			os.Exit(1)
 		}
 		exactN += rec.Population
 	}
-	tx := time.Since(start).Seconds() / float64(*reps)
+	te /= float64(*reps)
+	tx /= float64(*reps)
 	// N_T varies a lot between replicates, so compare time per final particle as well.
 	pe := te / (float64(eulerN) / float64(*reps))
 	px := tx / (float64(exactN) / float64(*reps))
