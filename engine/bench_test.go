@@ -55,16 +55,34 @@ func BenchmarkRawVariates(b *testing.B) {
 }
 
 // rawEngine draws, per iteration, one node's exponential and d normals as the walk
-// does, from a key derived from a parent's.
+// does (the fast paths inline, node3's words for d <= 3), from a key derived from a
+// parent's.
 func rawEngine(b *testing.B, d int) {
 	var r nodeRand
 	var s float64
 	for i := 0; i < b.N; i++ {
 		k := childOf(uint64(i), uint64(i)*0x9e3779b97f4a7c15, i&1)
 		r.seed(k)
-		s += expFromWord(k.hi, &r)
+		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
+			s += float64(uint32(u)) * float64(zigWe[uint8(u>>32)])
+		} else {
+			s += r.expSlow(u)
+		}
 		for j := 0; j < d; j++ {
-			s += normFromWord(normalWord(k, uint64(j)), &r)
+			var u uint64
+			switch j {
+			case 0:
+				u = k.lo
+			case 1:
+				u = spareWord(k)
+			default:
+				u = mix64(k.lo + uint64(j)*normalGamma)
+			}
+			z, ok := zigNormal(u)
+			if !ok {
+				z = r.normSlow(u)
+			}
+			s += z
 		}
 	}
 	if s == 0.5 {
