@@ -9,8 +9,9 @@ package engine
 const AbsurdNodes = 1e13
 
 // NominalNodeSeconds is a deliberately round per-node cost used for estimates shown
-// before a run and for task sizing; BENCHMARKS.md has the measured figures (about 55,
-// 65 and 80 ns per node in d = 1, 2, 3 on the development machines).
+// before a run and for task sizing, on the safe side of the measured figures in
+// BENCHMARKS.md (about 25-40, 30-50 and 35-55 ns per node in d = 1, 2, 3 on the shared
+// development machines, depending on their load).
 const NominalNodeSeconds = 60e-9
 
 // AbsurdSweepNodes is the same limit for a sweep run on a cluster (`bbmx plan`, the
