@@ -251,8 +251,8 @@ func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 // the code has no bounds checks and no loops over the coordinates.
 type vec struct{ x, y, z float64 }
 
-// node3 is node for d <= 3 (the common case), written out with positions in vecs: 25-30 %
-// faster. It must give the same records as node, draw for draw and rounding for
+// node3 is node for d <= 3 (the common case), written out with positions in vecs: 20-30 %
+// fewer instructions per node. It must give the same records as node, draw for draw and rounding for
 // rounding; TestNode3MatchesNode compares the two on many cells. The rare cases (a
 // checkpoint to cut at, a top-K candidate) go through node's helpers.
 func (w *walker) node3(k key, birth float64, p vec, depth int) {
