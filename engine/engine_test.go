@@ -6,6 +6,7 @@ import (
 	"encoding/hex"
 	"fmt"
 	"math"
+	"os"
 	"reflect"
 	"strconv"
 	"strings"
@@ -52,8 +53,14 @@ func meanSE(x []float64) (float64, float64) {
 
 func within4SE(t *testing.T, what string, x []float64, want float64) {
 	t.Helper()
+	withinSE(t, 4, what, x, want)
+}
+
+// withinSE fails if the mean of x is more than k standard errors from want.
+func withinSE(t *testing.T, k float64, what string, x []float64, want float64) {
+	t.Helper()
 	m, se := meanSE(x)
-	if math.Abs(m-want) > 4*se {
+	if math.Abs(m-want) > k*se {
 		t.Errorf("%s: mean %.6g, want %.6g (SE %.3g, %.1f SE off)", what, m, want, se, (m-want)/se)
 	}
 }
@@ -191,30 +198,47 @@ func TestManyToTwo(t *testing.T) {
 
 // TestMartingaleMeans: E[Z_s(u)] = 0 for every direction u (hence for the sphere average
 // Z_s) and E[W_s(lambda)] = 1 (martingale property, common practice; SPEC §2-§3).
-// False-alarm rate: 80 comparisons at 4 SE, about 5e-3 in all (the Z tails are heavier
-// than normal, so the SE is itself noisy; fixed seed).
+// Z_s(u) has a heavy negative tail (a rare particle ahead of the front contributes
+// -<X,u> e^{theta <X,u>}): its skewness grows like e^{theta^2 s}, so at s = 2 a sample
+// of thousands mostly misses that tail and its mean sits several of its own standard
+// errors above 0 in many seeds (measured: 7 of 8 seeds at 4 SE). Z is therefore tested
+// at s = 0.5, where the sample mean is close to normal, and W (lambda = theta/2, a much
+// lighter tail) at s = 0.5 and 2. False-alarm rate: 60 comparisons at 4.5 SE, about 4e-4
+// if normal; measured over 40 seeds (seed offsets 1000, 2000, ...; BBMX_LONG=1 runs
+// them): no failure.
 func TestMartingaleMeans(t *testing.T) {
+	offsets := []uint64{0}
+	if os.Getenv("BBMX_LONG") != "" {
+		for i := uint64(1); i <= 40; i++ {
+			offsets = append(offsets, 1000*i)
+		}
+	}
 	const T, n = 2.5, 6000
-	for d := 1; d <= 3; d++ {
-		c := stdCell(d, T, engine.Observe{Checkpoints: []float64{1, 2}, Directions: 16})
-		recs := runBatch(t, c, 41+uint64(d), n)
-		for ci, s := range []float64{1, 2} {
-			name := "d=" + string(rune('0'+d)) + " s=" + string(rune('0'+int(s)))
-			z, w := make([]float64, n), make([]float64, n)
-			for i, rec := range recs {
-				if rec.Checks[ci].Time != s {
-					t.Fatalf("checkpoint %d has time %v, want %v", ci, rec.Checks[ci].Time, s)
-				}
-				z[i], w[i] = rec.Checks[ci].Z, rec.Checks[ci].W
-			}
-			within4SE(t, name+" Z", z, 0)
-			within4SE(t, name+" W", w, 1)
-			for j := 0; j < c.NumDirections(); j++ {
-				zu := make([]float64, n)
+	for _, off := range offsets {
+		for d := 1; d <= 3; d++ {
+			c := stdCell(d, T, engine.Observe{Checkpoints: []float64{0.5, 2}, Directions: 16})
+			recs := runBatch(t, c, 41+uint64(d)+off, n)
+			for ci, s := range []float64{0.5, 2} {
+				name := fmt.Sprintf("seed %d d=%d s=%g", 41+uint64(d)+off, d, s)
+				z, w := make([]float64, n), make([]float64, n)
 				for i, rec := range recs {
-					zu[i] = rec.Checks[ci].ZDir[j]
+					if rec.Checks[ci].Time != s {
+						t.Fatalf("checkpoint %d has time %v, want %v", ci, rec.Checks[ci].Time, s)
+					}
+					z[i], w[i] = rec.Checks[ci].Z, rec.Checks[ci].W
 				}
-				within4SE(t, name+" Z(u_"+itoa(j)+")", zu, 0)
+				withinSE(t, 4.5, name+" W", w, 1)
+				if s > 0.5 {
+					continue
+				}
+				withinSE(t, 4.5, name+" Z", z, 0)
+				for j := 0; j < c.NumDirections(); j++ {
+					zu := make([]float64, n)
+					for i, rec := range recs {
+						zu[i] = rec.Checks[ci].ZDir[j]
+					}
+					withinSE(t, 4.5, name+" Z(u_"+itoa(j)+")", zu, 0)
+				}
 			}
 		}
 	}
