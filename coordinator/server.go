@@ -4,7 +4,6 @@ import (
 	"context"
 	"crypto/subtle"
 	"crypto/tls"
-	"crypto/x509"
 	"fmt"
 	"net"
 	"os"
@@ -19,11 +18,8 @@ import (
 	"google.golang.org/grpc/status"
 
 	pb "bbmx/proto/bbmx/v1"
+	"bbmx/proto/link"
 )
-
-// MaxMessageBytes bounds every gRPC message; a task's result is planned to stay well
-// below it (maxResultBytes).
-const MaxMessageBytes = 32 << 20
 
 // TLSFiles names the PEM files of the transport's TLS set-up. Empty CertFile means
 // plaintext (fine on loopback; anywhere else use TLS).
@@ -49,26 +45,13 @@ func ServerTLS(f TLSFiles) (*tls.Config, error) {
 	}
 	cfg := &tls.Config{Certificates: []tls.Certificate{cert}, MinVersion: tls.VersionTLS12}
 	if f.ClientCAFile != "" {
-		pool, err := LoadCAPool(f.ClientCAFile)
+		pool, err := link.LoadCAPool(f.ClientCAFile)
 		if err != nil {
 			return nil, err
 		}
 		cfg.ClientCAs, cfg.ClientAuth = pool, tls.RequireAndVerifyClientCert
 	}
 	return cfg, nil
-}
-
-// LoadCAPool reads a PEM file of CA certificates.
-func LoadCAPool(path string) (*x509.CertPool, error) {
-	pem, err := os.ReadFile(path)
-	if err != nil {
-		return nil, fmt.Errorf("read CA file: %w", err)
-	}
-	pool := x509.NewCertPool()
-	if !pool.AppendCertsFromPEM(pem) {
-		return nil, fmt.Errorf("%s holds no PEM certificate", path)
-	}
-	return pool, nil
 }
 
 // ReadToken reads a shared token file: the first line, trimmed; it must be at least 16
@@ -102,7 +85,7 @@ func NewServer(c *Coordinator, token string, tlsCfg *tls.Config) *grpc.Server {
 		return status.Error(codes.Unauthenticated, "missing or wrong token")
 	}
 	opts := []grpc.ServerOption{
-		grpc.MaxRecvMsgSize(MaxMessageBytes), grpc.MaxSendMsgSize(MaxMessageBytes),
+		grpc.MaxRecvMsgSize(link.MaxMessageBytes), grpc.MaxSendMsgSize(link.MaxMessageBytes),
 		grpc.UnaryInterceptor(func(ctx context.Context, req any, info *grpc.UnaryServerInfo, h grpc.UnaryHandler) (any, error) {
 			if err := check(ctx, info.FullMethod); err != nil {
 				return nil, err

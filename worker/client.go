@@ -3,9 +3,7 @@ package worker
 import (
 	"context"
 	"crypto/tls"
-	"crypto/x509"
 	"fmt"
-	"os"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/credentials"
@@ -13,10 +11,8 @@ import (
 	"google.golang.org/grpc/metadata"
 
 	pb "bbmx/proto/bbmx/v1"
+	"bbmx/proto/link"
 )
-
-// maxMessageBytes matches the coordinator's limit.
-const maxMessageBytes = 32 << 20
 
 // TLSFiles names a worker's TLS files. An empty CAFile with no client certificate
 // means plaintext.
@@ -42,13 +38,9 @@ func Dial(addr, token string, f TLSFiles) (Client, func() error, error) {
 	} else {
 		cfg := &tls.Config{MinVersion: tls.VersionTLS12, ServerName: f.ServerName}
 		if f.CAFile != "" {
-			pem, err := os.ReadFile(f.CAFile)
+			pool, err := link.LoadCAPool(f.CAFile)
 			if err != nil {
-				return nil, nil, fmt.Errorf("read CA file: %w", err)
-			}
-			pool := x509.NewCertPool()
-			if !pool.AppendCertsFromPEM(pem) {
-				return nil, nil, fmt.Errorf("%s holds no PEM certificate", f.CAFile)
+				return nil, nil, err
 			}
 			cfg.RootCAs = pool
 		}
@@ -62,7 +54,7 @@ func Dial(addr, token string, f TLSFiles) (Client, func() error, error) {
 		creds = credentials.NewTLS(cfg)
 	}
 	conn, err := grpc.NewClient(addr, grpc.WithTransportCredentials(creds),
-		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(maxMessageBytes), grpc.MaxCallSendMsgSize(maxMessageBytes)))
+		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(link.MaxMessageBytes), grpc.MaxCallSendMsgSize(link.MaxMessageBytes)))
 	if err != nil {
 		return nil, nil, fmt.Errorf("coordinator address %q: %w", addr, err)
 	}
