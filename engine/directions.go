@@ -2,7 +2,6 @@ package engine
 
 import (
 	"math"
-	"math/rand/v2"
 )
 
 // DirectionGrid returns the fixed unit vectors on which the directional derivative
@@ -18,19 +17,20 @@ func DirectionGrid(d, n int) []float64 {
 	switch d {
 	case 2:
 		for j := 0; j < n; j++ {
-			a := 2 * math.Pi * float64(j) / float64(n)
-			g = append(g, math.Cos(a), math.Sin(a))
+			s, c := psincos(2 * math.Pi * float64(j) / float64(n))
+			g = append(g, c, s)
 		}
 	case 3:
 		golden := math.Pi * (3 - math.Sqrt(5))
 		for j := 0; j < n; j++ {
 			z := 1 - (float64(2*float64(j))+1)/float64(n)
 			r := math.Sqrt(1 - float64(z*z))
-			a := golden * float64(j)
-			g = append(g, r*math.Cos(a), r*math.Sin(a), z)
+			s, c := psincos(golden * float64(j))
+			g = append(g, r*c, r*s, z)
 		}
 	default:
-		rng := rand.New(rand.NewPCG(uint64(d), uint64(n)))
+		var rng nodeRand // the draws of rand.New(rand.NewPCG(d, n)), with portable tails
+		rng.seed(key{hi: uint64(d), lo: uint64(n)})
 		v := make([]float64, d)
 		for j := 0; j < n; j++ {
 			var s float64

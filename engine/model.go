@@ -29,13 +29,16 @@ type Model struct {
 // DefaultModel is the standard model in d = 2: sigma = beta = 1, binary branching.
 func DefaultModel() Model { return Model{Dim: 2, Sigma: 1, Beta: 1, Children: 2} }
 
+// maxDim is the largest dimension supported.
+const maxDim = 64
+
 // Validate reports the first parameter that is out of range.
 func (m Model) Validate() error {
 	switch {
 	case m.Dim < 1:
 		return fmt.Errorf("dimension must be at least 1, got %d", m.Dim)
-	case m.Dim > 64:
-		return fmt.Errorf("dimension %d is larger than the supported 64", m.Dim)
+	case m.Dim > maxDim:
+		return fmt.Errorf("dimension %d is larger than the supported %d", m.Dim, maxDim)
 	case !(m.Sigma > 0) || math.IsInf(m.Sigma, 0):
 		return fmt.Errorf("sigma must be a positive finite number, got %v", m.Sigma)
 	case !(m.Beta > 0) || math.IsInf(m.Beta, 0):
@@ -66,16 +69,16 @@ func (m Model) Centring(t float64) float64 {
 	if t <= 0 {
 		return 0
 	}
-	return float64(m.Speed()*t) + float64(m.LogCoefficient()*math.Log(t))
+	return float64(m.Speed()*t) + float64(m.LogCoefficient()*plog(t))
 }
 
 // MeanPopulation is E[N_t] = e^{g t}.
-func (m Model) MeanPopulation(t float64) float64 { return math.Exp(m.Growth() * t) }
+func (m Model) MeanPopulation(t float64) float64 { return pexp(m.Growth() * t) }
 
 // ExpectedNodes is the cost model: the expected number of tree nodes (particles ever
 // born, each costing d normals and one exponential) of one replicate to horizon t,
 // (k e^{g t} - 1)/(k - 1), about (k/(k-1)) e^{g t}.
 func (m Model) ExpectedNodes(t float64) float64 {
 	k := float64(m.Children)
-	return (float64(k*math.Exp(m.Growth()*t)) - 1) / (k - 1)
+	return (float64(k*pexp(m.Growth()*t)) - 1) / (k - 1)
 }

@@ -18,12 +18,9 @@ func PhiScaled(d int, z float64) float64 {
 	}
 	switch d {
 	case 1:
-		return 0.5 * (1 + math.Exp(-2*z))
+		return 0.5 * (1 + pexp(-2*z))
 	case 3:
-		if z < 1e-8 {
-			return (1 - z) * (1 + z*z/6) // avoid 0/0; error O(z^3)
-		}
-		return -math.Expm1(-float64(2*z)) / float64(2*z)
+		return oneMinusExpOver(2 * z)
 	}
 	b := float64(float64(d) / 2) // rounded: no fused multiply-add with the next line
 	nu := b - 1
@@ -51,7 +48,7 @@ func phiSeries(b, z float64) float64 {
 			scale += 200 * math.Ln10
 		}
 	}
-	return sum * math.Exp(scale-z)
+	return sum * pexp(scale-z)
 }
 
 // phiAsymptotic uses e^{-z} I_nu(z) ~ (2 pi z)^{-1/2} sum_k (-1)^k a_k(nu) / z^k with
@@ -72,7 +69,7 @@ func phiAsymptotic(b, nu, z float64) float64 {
 			break
 		}
 	}
-	lg, _ := math.Lgamma(b)
+	lg := lgammaHalf[int(2*b)]
 	// Gamma(b) (2/z)^nu (2 pi z)^{-1/2}
-	return sum * math.Exp(lg+float64(nu*math.Log(2/z))-float64(0.5*math.Log(2*math.Pi*z)))
+	return sum * pexp(lg+float64(nu*plog(2/z))-float64(0.5*plog(2*math.Pi*z)))
 }

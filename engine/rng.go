@@ -1,9 +1,6 @@
 package engine
 
-import (
-	"math"
-	"math/bits"
-)
+import "math/bits"
 
 // key identifies one node of one replicate's genealogical tree: a 128-bit hash of
 // (sweep seed, cell, replicate, path of child indices from the root). Every random
@@ -188,9 +185,9 @@ func (n *nodeRand) expSlow(u uint64) float64 {
 			return x
 		}
 		if i == 0 {
-			return re - math.Log(n.Float64())
+			return re - plog(n.Float64())
 		}
-		if zigFe[i]+float32(float32(n.Float64())*(zigFe[i-1]-zigFe[i])) < float32(math.Exp(-x)) {
+		if zigFe[i]+float32(float32(n.Float64())*(zigFe[i-1]-zigFe[i])) < float32(pexp(-x)) {
 			return x
 		}
 		u = n.Uint64()
@@ -226,8 +223,8 @@ func (n *nodeRand) normSlow(u uint64) float64 {
 		}
 		if i == 0 {
 			for {
-				x = float64(-math.Log(n.Float64()) * (1.0 / rn))
-				y := -math.Log(n.Float64())
+				x = float64(-plog(n.Float64()) * (1.0 / rn))
+				y := -plog(n.Float64())
 				if y+y >= x*x {
 					break
 				}
@@ -237,7 +234,7 @@ func (n *nodeRand) normSlow(u uint64) float64 {
 			}
 			return -rn - x
 		}
-		if zigFn[i]+float32(float32(n.Float64())*(zigFn[i-1]-zigFn[i])) < float32(math.Exp(-.5*x*x)) {
+		if zigFn[i]+float32(float32(n.Float64())*(zigFn[i-1]-zigFn[i])) < float32(pexp(-.5*x*x)) {
 			return x
 		}
 		u = n.Uint64()

@@ -10,7 +10,8 @@ import (
 // neighbouring float: the standard library's ziggurat may be compiled with fused
 // multiply-adds (GOAMD64=v3, arm64), which round once where the engine, which forbids
 // them so that records do not depend on the build, rounds twice (see
-// TestNoFusedMultiplyAdd). Plain amd64 builds, as in CI, agree bit for bit.
+// TestNoFusedMultiplyAdd), and its rare tail steps use the math package's Log and Exp
+// where the engine uses its portable ones (fmath.go), which may differ in the last bit.
 func sameDraw(a, b float64) bool { return a == b || a == math.Nextafter(b, a) }
 
 // TestGeneratorMatchesStdlib: the engine's generator must give, bit for bit, the draws of

@@ -469,10 +469,10 @@ func (w *walker) checkpoint(ci int, x []float64) {
 	d := float64(w.d)
 	// Sphere averages: avg exp(theta<X,u>) = Phi_d(theta rho),
 	// avg <X,u> exp(theta<X,u>) = rho (theta rho / d) Phi_{d+2}(theta rho).
-	e := math.Exp(tr + w.zScale[ci])
+	e := pexp(tr + w.zScale[ci])
 	pc.z.Add(e * (float64(w.v*s*PhiScaled(w.d, tr)) - float64(rho*(tr/d)*PhiScaled(w.d+2, tr))))
 	lr := float64(w.lambda * rho)
-	pc.w.Add(math.Exp(lr+w.wScale[ci]) * PhiScaled(w.d, lr))
+	pc.w.Add(pexp(lr+w.wScale[ci]) * PhiScaled(w.d, lr))
 	vs := float64(w.v * s)
 	for j := 0; j < w.nDirs; j++ {
 		u := w.dirs[j*w.d : (j+1)*w.d]
@@ -480,7 +480,7 @@ func (w *walker) checkpoint(ci int, x []float64) {
 		for i, xi := range x {
 			p += float64(xi * u[i])
 		}
-		pc.zdir[j].Add((vs - p) * math.Exp(float64(w.theta*p)+w.zScale[ci]))
+		pc.zdir[j].Add((vs - p) * pexp(float64(w.theta*p)+w.zScale[ci]))
 	}
 }
 
