@@ -56,7 +56,10 @@ func pexp(x float64) float64 {
 	t := float64(r * r)
 	c := r - float64(t*(p1+float64(t*(p2+float64(t*(p3+float64(t*(p4+float64(t*p5)))))))))
 	y := 1 - ((lo - float64(r*c)/(2-c)) - hi)
-	return math.Ldexp(y, k)
+	if k < -1021 || k > 1022 {
+		return math.Ldexp(y, k) // subnormal or near overflow
+	}
+	return y * math.Float64frombits(uint64(k+1023)<<52) // exact: a power of two in range
 }
 
 // plog is the natural logarithm.

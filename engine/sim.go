@@ -243,7 +243,7 @@ func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 	if w.d > 2 {
 		p.z = pos[2]
 	}
-	w.node3(k, birth, p, depth)
+	w.node3(k, birth, p)
 }
 
 // vec is a position in at most three dimensions, the unused coordinates 0. node3 carries
@@ -255,7 +255,7 @@ type vec struct{ x, y, z float64 }
 // fewer instructions per node. It must give the same records as node, draw for draw and rounding for
 // rounding; TestNode3MatchesNode compares the two on many cells. The rare cases (a
 // checkpoint to cut at, a top-K candidate) go through node's helpers.
-func (w *walker) node3(k key, birth float64, p vec, depth int) {
+func (w *walker) node3(k key, birth float64, p vec) {
 	last, d := w.k-1, w.d
 	for {
 		w.rng.seed(k)
@@ -299,7 +299,7 @@ func (w *walker) node3(k key, birth float64, p vec, depth int) {
 				}
 			}
 		} else {
-			q = w.advance3(k, birth, until, p, depth)
+			q = w.advance3(k, birth, until, p)
 		}
 		if death > w.horizon {
 			// leaf, written out; the sum of squares in the order leaf adds them (the
@@ -307,29 +307,28 @@ func (w *walker) node3(k key, birth float64, p vec, depth int) {
 			w.tally()
 			r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
 			if r >= w.topFloor {
-				s := w.level(depth + 1)[:d]
-				copy(s, []float64{q.x, q.y, q.z}[:d])
-				w.offer(r, s)
+				w.offer(r, []float64{q.x, q.y, q.z}[:d]) // offer copies what it keeps
 			}
 			w.count(r)
 			return
 		}
 		ka, kb := k.mixes()
 		if last == 1 { // binary branching: no loop
-			w.node3(childOf(ka, kb, 0), death, q, depth+1)
+			w.node3(childOf(ka, kb, 0), death, q)
 		} else {
 			for i := 0; i < last; i++ {
-				w.node3(childOf(ka, kb, i), death, q, depth+1)
+				w.node3(childOf(ka, kb, i), death, q)
 			}
 		}
-		k, birth, p, depth = childOf(ka, kb, last), death, q, depth+1
+		k, birth, p = childOf(ka, kb, last), death, q
 	}
 }
 
 // advance3 is advance for node3: the position at time until of the node with key k,
 // born at birth at p, cut at the checkpoints in between.
-func (w *walker) advance3(k key, birth, until float64, p vec, depth int) vec {
-	pos, end := w.level(depth)[:w.d], w.level(depth + 1)[:w.d]
+func (w *walker) advance3(k key, birth, until float64, p vec) vec {
+	var buf [6]float64
+	pos, end := buf[:w.d], buf[3:3+w.d]
 	copy(pos, []float64{p.x, p.y, p.z}[:w.d])
 	w.cur, w.nNorm = k, 0
 	w.advance(birth, until, pos, end, true)
