@@ -8,6 +8,7 @@ import (
 	"math"
 	"os"
 	"reflect"
+	"sort"
 	"strconv"
 	"strings"
 	"testing"
@@ -264,6 +265,63 @@ func TestMartingaleMeans(t *testing.T) {
 			}
 		}
 	}
+}
+
+// TestFarthestDirectionUniform: the law of BBM is invariant under rotations, so the
+// direction of the farthest particle is uniform on the sphere (exact, by symmetry): in
+// d = 2 its angle is uniform on [0, 2 pi), in d = 3 each coordinate is uniform on [-1, 1]
+// (Archimedes' hat-box theorem). Kolmogorov–Smirnov against those laws, with the
+// asymptotic bound sqrt(n) D > 1.95, whose false-alarm rate is about 2 exp(-2 1.95^2) =
+// 1e-3 per check (Kolmogorov's limit law, handbook fact), and every coordinate's mean
+// within 4.5 SE of 0. Guards the normals coordinate by coordinate: they come from
+// different words of the key (normalWord), and an error in one coordinate shows up here
+// though radial statistics may not see it. False-alarm rate about 4e-3 for the 4 KS
+// checks and 5 means; no failure in 41 seeds (BBMX_LONG=1).
+func TestFarthestDirectionUniform(t *testing.T) {
+	const T, n = 5.0, 20000
+	for _, off := range seedOffsets() {
+		for _, d := range []int{2, 3} {
+			c := stdCell(d, T, engine.Observe{})
+			recs := runBatch(t, c, 51+uint64(d)+off, n)
+			cols := d - 1 // d = 2: the angle; d = 3: each of the three coordinates
+			if d == 3 {
+				cols = 3
+			}
+			for k := 0; k < cols; k++ {
+				u := make([]float64, n)
+				for i, r := range recs {
+					dir := r.Top[0].Dir
+					if d == 2 {
+						u[i] = (math.Atan2(dir[1], dir[0]) + math.Pi) / (2 * math.Pi)
+					} else {
+						u[i] = (dir[k] + 1) / 2
+					}
+				}
+				if dn := ksUniform(u) * math.Sqrt(n); dn > 1.95 {
+					t.Errorf("seed %d d=%d column %d: farthest direction not uniform, sqrt(n) D = %.3f", 51+uint64(d)+off, d, k, dn)
+				}
+			}
+			for k := 0; k < d; k++ {
+				x := make([]float64, n)
+				for i, r := range recs {
+					x[i] = r.Top[0].Dir[k]
+				}
+				withinSE(t, 4.5, fmt.Sprintf("seed %d d=%d mean of coordinate %d of the farthest direction", 51+uint64(d)+off, d, k), x, 0)
+			}
+		}
+	}
+}
+
+// ksUniform is the Kolmogorov–Smirnov distance of a sample in [0, 1] to the uniform law.
+func ksUniform(u []float64) float64 {
+	s := append([]float64(nil), u...)
+	sort.Float64s(s)
+	n := float64(len(s))
+	var d float64
+	for i, x := range s {
+		d = math.Max(d, math.Max(float64(i+1)/n-x, x-float64(i)/n))
+	}
+	return d
 }
 
 // splitCell is a cell whose checkpoints include the split times themselves and whose
