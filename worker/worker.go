@@ -185,13 +185,18 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 
 	runTask := func(t *pb.Task) {
 		defer wg.Done()
-		defer func() {
-			<-slots
+		// The thread is free as soon as the simulation ends: the result's upload and the
+		// coordinator's durable commit (a second or more for a large task) then overlap
+		// the next task's simulation instead of leaving the core idle.
+		wake := func() {
 			select { // a wake-up for the lease loop; one pending is enough
 			case finished <- struct{}{}:
 			default:
 			}
-		}()
+		}
+		freeSlot := sync.OnceFunc(func() { <-slots; wake() })
+		defer wake() // again once submitted: the sweep may be complete, or tasks freed
+		defer freeSlot()
 		tctx, cancel := context.WithCancel(bg)
 		r := &running{task: t, cancel: cancel}
 		mu.Lock()
@@ -212,6 +217,7 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 			mu.Unlock()
 		})
 		elapsed := time.Since(start)
+		freeSlot()
 		if tctx.Err() != nil {
 			return // lost, or handed back by the shutdown path
 		}
