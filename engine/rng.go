@@ -107,11 +107,18 @@ func zigNormal(u uint64) (float64, bool) {
 	return float64(j) * float64(zigWn[s]), absInt32(j) < zigKn[s]
 }
 
+// zigExp is the ziggurat's fast path for the exponential on word u: the value and
+// whether it stands; if not, the draw is expSlow(u) instead.
+func zigExp(u uint64) (float64, bool) {
+	j, i := uint32(u), uint8(u>>32)
+	return float64(j) * float64(zigWe[i]), j < zigKe[i]
+}
+
 // expFromWord is the standard exponential whose ziggurat fast path reads u; the rare
 // rejection steps draw further uniforms from r.
 func expFromWord(u uint64, r *nodeRand) float64 {
-	if j, i := uint32(u), uint8(u>>32); j < zigKe[i] {
-		return float64(j) * float64(zigWe[i])
+	if e, ok := zigExp(u); ok {
+		return e
 	}
 	return r.expSlow(u)
 }
@@ -161,17 +168,8 @@ func (n *nodeRand) Uint64() uint64 {
 // Float64 is uniform on [0, 1) with 53 random bits.
 func (n *nodeRand) Float64() float64 { return float64(n.Uint64()<<11>>11) / (1 << 53) }
 
-// ExpFloat64 is a standard exponential variate. The fast path (one table test) is kept
-// small so that it inlines; the rare rejection steps are in expSlow.
-func (n *nodeRand) ExpFloat64() float64 {
-	u := n.Uint64()
-	j := uint32(u)
-	i := uint8(u >> 32)
-	if j < zigKe[i] {
-		return float64(j) * float64(zigWe[i])
-	}
-	return n.expSlow(u)
-}
+// ExpFloat64 is a standard exponential variate from the next word (expFromWord).
+func (n *nodeRand) ExpFloat64() float64 { return expFromWord(n.Uint64(), n) }
 
 func (n *nodeRand) expSlow(u uint64) float64 {
 	const re = 7.69711747013104972
@@ -192,16 +190,8 @@ func (n *nodeRand) expSlow(u uint64) float64 {
 	}
 }
 
-// NormFloat64 is a standard normal variate; fast path inlined, rare steps in normSlow.
-func (n *nodeRand) NormFloat64() float64 {
-	u := n.Uint64()
-	j := int32(u)
-	i := u >> 32 & 0x7F
-	if absInt32(j) < zigKn[i] {
-		return float64(j) * float64(zigWn[i])
-	}
-	return n.normSlow(u)
-}
+// NormFloat64 is a standard normal variate from the next word (normFromWord).
+func (n *nodeRand) NormFloat64() float64 { return normFromWord(n.Uint64(), n) }
 
 func absInt32(i int32) uint32 {
 	if i < 0 {

@@ -235,21 +235,29 @@ func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 		w.node(k, birth, pos, depth)
 		return
 	}
-	var p vec
-	p.x = pos[0]
-	if w.d > 1 {
-		p.y = pos[1]
-	}
-	if w.d > 2 {
-		p.z = pos[2]
-	}
-	w.node3(k, birth, p)
+	w.node3(k, birth, vecOf(pos))
 }
 
 // vec is a position in at most three dimensions, the unused coordinates 0. node3 carries
 // positions in these rather than in slices: the compiler passes them in registers, and
 // the code has no bounds checks and no loops over the coordinates.
 type vec struct{ x, y, z float64 }
+
+// vecOf is the vec of a position of 1, 2 or 3 coordinates.
+func vecOf(s []float64) vec {
+	var v vec
+	v.x = s[0]
+	if len(s) > 1 {
+		v.y = s[1]
+	}
+	if len(s) > 2 {
+		v.z = s[2]
+	}
+	return v
+}
+
+// coords is v's first d coordinates.
+func (v vec) coords(d int) []float64 { return []float64{v.x, v.y, v.z}[:d] }
 
 // node3 is node for d <= 3 (the common case), written out with positions in vecs: 20-30 %
 // fewer instructions per node. It must give the same records as node, draw for draw and rounding for
@@ -258,19 +266,12 @@ type vec struct{ x, y, z float64 }
 func (w *walker) node3(k key, birth float64, p vec) {
 	last, d := w.k-1, w.d
 	for {
-		w.rng.seed(k)
-		var e float64
-		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
-			e = float64(uint32(u)) * float64(zigWe[uint8(u>>32)])
-		} else {
-			e = w.rng.expSlow(u)
+		w.rng.seed(k) // start's body written out (start does not inline)
+		e, ok := zigExp(k.hi)
+		if !ok {
+			e = w.rng.expSlow(k.hi)
 		}
-		if w.invBetaExact {
-			e = float64(e * w.invBeta)
-		} else {
-			e /= w.beta
-		}
-		death := birth + e
+		death := birth + w.perRate(e)
 		until := min(death, w.horizon)
 		q := p
 		if birth > w.lastCheck {
@@ -307,7 +308,7 @@ func (w *walker) node3(k key, birth float64, p vec) {
 			w.tally()
 			r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
 			if r >= w.topFloor {
-				w.offer(r, []float64{q.x, q.y, q.z}[:d]) // offer copies what it keeps
+				w.offer(r, q.coords(d)) // offer copies what it keeps
 			}
 			w.count(r)
 			return
@@ -329,25 +330,22 @@ func (w *walker) node3(k key, birth float64, p vec) {
 func (w *walker) advance3(k key, birth, until float64, p vec) vec {
 	var buf [6]float64
 	pos, end := buf[:w.d], buf[3:3+w.d]
-	copy(pos, []float64{p.x, p.y, p.z}[:w.d])
+	copy(pos, p.coords(w.d))
 	w.cur, w.nNorm = k, 0
 	w.advance(birth, until, pos, end, true)
-	var q vec
-	q.x = end[0]
-	if w.d > 1 {
-		q.y = end[1]
-	}
-	if w.d > 2 {
-		q.z = end[2]
-	}
-	return q
+	return vecOf(end)
 }
 
 // start makes k the current node (its draws come next) and returns its lifetime.
 func (w *walker) start(k key) float64 {
 	w.rng.seed(k)
 	w.cur, w.nNorm = k, 0
-	e := expFromWord(k.hi, &w.rng)
+	return w.perRate(expFromWord(k.hi, &w.rng))
+}
+
+// perRate turns a standard exponential into a lifetime at rate beta: e / beta, by
+// multiplying with 1/beta where that gives the same bits (beta a power of two).
+func (w *walker) perRate(e float64) float64 {
 	if w.invBetaExact {
 		return float64(e * w.invBeta)
 	}
@@ -361,18 +359,11 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 	last := w.k - 1
 	for {
 		w.rng.seed(k) // start's body written out (start does not inline)
-		var e float64
-		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
-			e = float64(uint32(u)) * float64(zigWe[uint8(u>>32)])
-		} else {
-			e = w.rng.expSlow(u)
+		e, ok := zigExp(k.hi)
+		if !ok {
+			e = w.rng.expSlow(k.hi)
 		}
-		if w.invBetaExact {
-			e = float64(e * w.invBeta) // equal to e / beta: beta is a power of two
-		} else {
-			e /= w.beta
-		}
-		death := birth + e
+		death := birth + w.perRate(e)
 		end := w.level(depth + 1)
 		until := min(death, w.horizon)
 		if birth > w.lastCheck {
@@ -384,10 +375,8 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 				sd := w.sigma * math.Sqrt(dt)
 				for i := range pos {
 					u := normalWord(k, uint64(i))
-					var z float64
-					if j, s := int32(u), u>>32&0x7F; absInt32(j) < zigKn[s] {
-						z = float64(j) * float64(zigWn[s])
-					} else {
+					z, ok := zigNormal(u)
+					if !ok {
 						z = w.rng.normSlow(u)
 					}
 					end[i] = pos[i] + float64(sd*z)
