@@ -63,21 +63,13 @@ func rawEngine(b *testing.B, d int) {
 	for i := 0; i < b.N; i++ {
 		k := childOf(uint64(i), uint64(i)*0x9e3779b97f4a7c15, i&1)
 		r.seed(k)
-		if u := k.hi; uint32(u) < zigKe[uint8(u>>32)] {
-			s += float64(uint32(u)) * float64(zigWe[uint8(u>>32)])
-		} else {
-			s += r.expSlow(u)
+		e, ok := zigExp(k.hi)
+		if !ok {
+			e = r.expSlow(k.hi)
 		}
+		s += e
 		for j := 0; j < d; j++ {
-			var u uint64
-			switch j {
-			case 0:
-				u = k.lo
-			case 1:
-				u = spareWord(k)
-			default:
-				u = mix64(k.lo + uint64(j)*normalGamma)
-			}
+			u := normalWord(k, uint64(j))
 			z, ok := zigNormal(u)
 			if !ok {
 				z = r.normSlow(u)

@@ -132,17 +132,7 @@ func TestManyToOne(t *testing.T) {
 			c := stdCell(d, T, engine.Observe{TopK: engine.MaxTopK})
 			recs := runBatch(t, c, 21+uint64(d)+off, n)
 			for _, r := range []float64{0.5, 1.5, 3, 4.5} {
-				x := make([]float64, n)
-				for i, rec := range recs {
-					if uint64(len(rec.Top)) != rec.Population {
-						t.Fatalf("d=%d rep %d: Top has %d of %d particles", d, i, len(rec.Top), rec.Population)
-					}
-					for _, pt := range rec.Top {
-						if pt.Radius > r {
-							x[i]++
-						}
-					}
-				}
+				x := countBeyond(t, recs, r)
 				want := math.Exp(T) * (1 - distuv.ChiSquared{K: float64(d)}.CDF(r*r/T))
 				within4SE(t, fmt.Sprintf("seed %d d=%d count |X|>%g", 21+uint64(d)+off, d, r), x, want)
 			}
@@ -150,7 +140,23 @@ func TestManyToOne(t *testing.T) {
 	}
 }
 
-func ftoa(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+// countBeyond is, per record, the number of particles farther than r from the origin.
+// Every particle must be in the record's top list (a top-K larger than any population).
+func countBeyond(t *testing.T, recs []engine.Record, r float64) []float64 {
+	t.Helper()
+	x := make([]float64, len(recs))
+	for i, rec := range recs {
+		if uint64(len(rec.Top)) != rec.Population {
+			t.Fatalf("rep %d: Top has %d of %d particles", i, len(rec.Top), rec.Population)
+		}
+		for _, pt := range rec.Top {
+			if pt.Radius > r {
+				x[i]++
+			}
+		}
+	}
+	return x
+}
 
 // TestManyToOneGeneralModel: the same many-to-one check away from the standard model:
 // k children at rate beta give mean population e^{beta (k-1) T} (branching-process
@@ -174,17 +180,7 @@ func TestManyToOneGeneralModel(t *testing.T) {
 			// 6000 replicates gave a 4.3 SE miss in one of 41 seeds)
 			for _, k := range []float64{0, 0.3, 0.9, 1.5} {
 				r := k * m.Sigma * math.Sqrt(T)
-				x := make([]float64, n)
-				for j, rec := range recs {
-					if uint64(len(rec.Top)) != rec.Population {
-						t.Fatalf("model %d rep %d: Top has %d of %d particles", i, j, len(rec.Top), rec.Population)
-					}
-					for _, pt := range rec.Top {
-						if pt.Radius > r {
-							x[j]++
-						}
-					}
-				}
+				x := countBeyond(t, recs, r)
 				want := mean * (1 - distuv.ChiSquared{K: float64(m.Dim)}.CDF(r*r/(m.Sigma*m.Sigma*T)))
 				within4SE(t, fmt.Sprintf("seed %d model %+v count |X|>%g", 41+uint64(i)+off, m, r), x, want)
 			}

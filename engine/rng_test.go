@@ -17,7 +17,9 @@ func sameDraw(a, b float64) bool { return a == b || a == math.Nextafter(b, a) }
 // TestGeneratorMatchesStdlib: the engine's generator must give, bit for bit, the draws of
 // math/rand/v2's Rand on a PCG with the same seed (same state update, DXSM output and
 // ziggurat tables), so its laws are exactly those of the standard library's ExpFloat64 and
-// NormFloat64. Deterministic; 2e6 draws hit the ziggurat's rare rejection and tail
+// NormFloat64. Its variates are expFromWord and normFromWord on its next word, as the
+// walk's are on a node's words, so this also checks the walk's ziggurat (fast path on a
+// given word, rare steps from the generator). Deterministic; 2e6 draws hit the ziggurat's rare rejection and tail
 // branches thousands of times (counted below, so the test fails if they are never hit).
 func TestGeneratorMatchesStdlib(t *testing.T) {
 	var slowExp, slowNorm int
@@ -56,43 +58,6 @@ func TestGeneratorMatchesStdlib(t *testing.T) {
 		t.Errorf("rare branches hit too seldom to be checked: exponential %d, normal %d", slowExp, slowNorm)
 	}
 	t.Logf("slow-path draws compared: exponential %d, normal %d", slowExp, slowNorm)
-}
-
-// TestZigguratFromWordsMatchesStdlib: the walk's exponential and normal, fed the words
-// of a PCG generator and drawing their rare rejection steps from it, must equal
-// math/rand/v2's ExpFloat64 and NormFloat64 on the same generator bit for bit: the
-// ziggurat code split into a fast path on a given word and a slow path is the standard
-// library's, so its laws are exactly exponential and normal given uniform words.
-// Deterministic; the rare branches are counted so the test fails if they are never hit.
-func TestZigguratFromWordsMatchesStdlib(t *testing.T) {
-	var slowExp, slowNorm int
-	for s := uint64(0); s < 1000; s++ {
-		k := key{hi: mix64(s), lo: mix64(s + 0x5678)}
-		var n nodeRand
-		n.seed(k)
-		r := rand.New(rand.NewPCG(k.hi, k.lo))
-		for i := 0; i < 1000; i++ {
-			u := n.Uint64()
-			if i%2 == 0 {
-				if uint32(u) >= zigKe[uint8(u>>32)] {
-					slowExp++
-				}
-				if a, b := expFromWord(u, &n), r.ExpFloat64(); !sameDraw(a, b) {
-					t.Fatalf("seed %d draw %d: exponential %v, stdlib %v", s, i, a, b)
-				}
-			} else {
-				if absInt32(int32(u)) >= zigKn[u>>32&0x7F] {
-					slowNorm++
-				}
-				if a, b := normFromWord(u, &n), r.NormFloat64(); !sameDraw(a, b) {
-					t.Fatalf("seed %d draw %d: normal %v, stdlib %v", s, i, a, b)
-				}
-			}
-		}
-	}
-	if slowExp < 500 || slowNorm < 500 {
-		t.Errorf("rare branches hit too seldom to be checked: exponential %d, normal %d", slowExp, slowNorm)
-	}
 }
 
 // TestNodeWordsLookIndependent: the random words of a node (its lifetime's word and its
