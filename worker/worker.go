@@ -186,8 +186,8 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 	runTask := func(t *pb.Task) {
 		defer wg.Done()
 		// The thread is free as soon as the simulation ends: the result's upload and the
-		// coordinator's durable commit (a second or more for a large task) then overlap
-		// the next task's simulation instead of leaving the core idle.
+		// coordinator's durable commit then overlap the next task's simulation instead of
+		// leaving the core idle.
 		wake := func() {
 			select { // a wake-up for the lease loop; one pending is enough
 			case finished <- struct{}{}:
