@@ -183,7 +183,7 @@ func (n *nodeRand) expSlow(u uint64) float64 {
 		if i == 0 {
 			return re - plog(n.Float64())
 		}
-		if zigFe[i]+float32(float32(n.Float64())*(zigFe[i-1]-zigFe[i])) < float32(pexp(-x)) {
+		if expWedges[i].below(x, zigFe[i]+float32(float32(n.Float64())*(zigFe[i-1]-zigFe[i]))) {
 			return x
 		}
 		u = n.Uint64()
@@ -222,7 +222,7 @@ func (n *nodeRand) normSlow(u uint64) float64 {
 			}
 			return -rn - x
 		}
-		if zigFn[i]+float32(float32(n.Float64())*(zigFn[i-1]-zigFn[i])) < float32(pexp(-.5*x*x)) {
+		if normWedges[i].below(float64(.5*x)*x, zigFn[i]+float32(float32(n.Float64())*(zigFn[i-1]-zigFn[i]))) {
 			return x
 		}
 		u = n.Uint64()

@@ -506,11 +506,11 @@ func (w *walker) offer(r float64, x []float64) {
 }
 
 // count adds a leaf at radius r to the histogram, left of it to the underflow slot.
+// Most leaves of a large tree lie far inside, so leaves fall left and right of the
+// histogram's edge at random: the slot is chosen from b's sign bit without a branch (b is
+// never -0 or NaN: r is finite and r - centre - hist0 is +0 when it is zero).
 func (w *walker) count(r float64) {
 	b := min((r-w.centre-w.hist0)*w.invBin, w.lastBin)
-	i := int(b) + 1
-	if b < 0 {
-		i = 0 // the underflow slot
-	}
-	w.hist[i]++
+	inside := int(math.Float64bits(b)>>63) - 1 // 0 if b < 0, else all ones
+	w.hist[(int(b)+1)&inside]++
 }
