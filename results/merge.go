@@ -8,7 +8,6 @@ import (
 	"os"
 	"sort"
 	"strings"
-	"time"
 
 	bolt "go.etcd.io/bbolt"
 
@@ -169,36 +168,17 @@ func MergeStores(out string, inputs []string) error {
 	return os.Rename(tmp, out)
 }
 
-// createForMerge creates the output store and reopens it with a memory map as large as
-// the inputs together (an upper bound of the output), so bbolt does not remap, and copy
-// every dirty page, each time the growing file outgrows the map.
+// createForMerge creates the output store with a memory map as large as the inputs
+// together (an upper bound of the output), so bbolt does not remap, and copy every dirty
+// page, each time the growing file outgrows the map.
 func createForMerge(out string, spec []byte, stream int, srcs []*Store) (*Store, error) {
-	dst, err := Create(out, spec)
-	if err != nil {
-		return nil, err
-	}
-	if err := dst.Close(); err != nil {
-		os.Remove(out)
-		return nil, err
-	}
 	var total int64
 	for _, s := range srcs {
 		if fi, err := os.Stat(s.path); err == nil {
 			total += fi.Size()
 		}
 	}
-	db, err := bolt.Open(out, 0o644, &bolt.Options{Timeout: 2 * time.Second, InitialMmapSize: int(min(total+total/8, 1<<40))})
-	if err != nil {
-		os.Remove(out)
-		return nil, fmt.Errorf("create %s: %w", out, err)
-	}
-	dst = &Store{db: db, path: out}
-	if err := dst.setStream(stream); err != nil {
-		dst.Close()
-		os.Remove(out)
-		return nil, err
-	}
-	return dst, nil
+	return create(out, spec, stream, int(min(total+total/8, 1<<40)))
 }
 
 // walkRecords visits, in key order, every record key of cell id held by the inputs

@@ -208,16 +208,35 @@ func (s *Sketch) Merge(o *Sketch) error {
 
 // MeanShift returns the mean of R*_T - m_T and its standard error.
 func (s *Sketch) MeanShift() (mean, se float64) {
+	mean, _, se, _ = s.ShiftMoments()
+	return mean, se
+}
+
+// ShiftMoments returns the mean and sd of R*_T - m_T from the sketch's exact power sums,
+// with their standard errors s/sqrt n and sqrt((m4 - m2^2)/(4 m2 n)) (delta method);
+// NaN for what the replicates cannot give (no replicate, or one for the sd).
+func (s *Sketch) ShiftMoments() (mean, sd, seMean, seSD float64) {
+	nan := math.NaN()
 	if s.N == 0 {
-		return math.NaN(), math.NaN()
+		return nan, nan, nan, nan
 	}
 	n := float64(s.N)
 	mean = s.Shift[0].Float64() / n
-	if s.N > 1 {
-		v := (s.Shift[1].Float64() - float64(n*mean*mean)) / (n - 1)
-		se = math.Sqrt(math.Max(v, 0) / n)
+	if s.N == 1 {
+		return mean, nan, nan, nan
 	}
-	return mean, se
+	s2, s3, s4 := s.Shift[1].Float64()/n, s.Shift[2].Float64()/n, s.Shift[3].Float64()/n
+	// products rounded before they are added, so no build fuses them (results are
+	// compared across machines; see engine's TestNoFusedMultiplyAdd)
+	mm := float64(mean * mean)
+	m2 := max(s2-mm, 0)
+	m4 := s4 - float64(4*mean*s3) + float64(6*mm*s2) - float64(3*mm*mm)
+	sd = math.Sqrt(float64(m2*n) / (n - 1))
+	seMean = sd / math.Sqrt(n)
+	if m2 > 0 {
+		seSD = math.Sqrt(max(m4-float64(m2*m2), 0) / (4 * m2 * n))
+	}
+	return mean, sd, seMean, seSD
 }
 
 func appendSparse(b []byte, xs []uint64) []byte {

@@ -7,7 +7,9 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
+	"io/fs"
 	"os"
+	"path/filepath"
 	"time"
 
 	bolt "go.etcd.io/bbolt"
@@ -49,10 +51,17 @@ type Store struct {
 // Create makes a new store at path holding the given canonical sweep spec. It refuses to
 // overwrite an existing file.
 func Create(path string, spec []byte) (*Store, error) {
+	return create(path, spec, engine.StreamVersion, 0)
+}
+
+// create is Create for records of the given random-stream version (a merge's output
+// takes its inputs'), with bbolt's memory map made mmapSize bytes at once when that is
+// above zero (so a store known to grow large is not remapped again and again).
+func create(path string, spec []byte, stream int, mmapSize int) (*Store, error) {
 	if _, err := os.Stat(path); err == nil {
 		return nil, fmt.Errorf("%s already exists", path)
 	}
-	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second})
+	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second, InitialMmapSize: mmapSize})
 	if err != nil {
 		return nil, fmt.Errorf("create %s: %w", path, err)
 	}
@@ -63,7 +72,7 @@ func Create(path string, spec []byte) (*Store, error) {
 			return err
 		}
 		for k, v := range map[string][]byte{"format": []byte(storeFormat), "engine": {engine.FormatVersion},
-			"stream": {engine.StreamVersion}, "spec": spec, "spec_sha256": sum[:]} {
+			"stream": {byte(stream)}, "spec": spec, "spec_sha256": sum[:]} {
 			if err := m.Put([]byte(k), v); err != nil {
 				return err
 			}
@@ -77,6 +86,20 @@ func Create(path string, spec []byte) (*Store, error) {
 		return nil, err
 	}
 	return &Store{db: db, path: path}, nil
+}
+
+// OpenOrCreate opens the store at path for writing, or creates it (and its folder) with
+// the given spec if there is no file there; created says which.
+func OpenOrCreate(path string, spec []byte) (st *Store, created bool, err error) {
+	st, err = Open(path, false)
+	if !errors.Is(err, fs.ErrNotExist) {
+		return st, false, err
+	}
+	if err := os.MkdirAll(filepath.Dir(path), 0o755); err != nil {
+		return nil, false, err
+	}
+	st, err = Create(path, spec)
+	return st, err == nil, err
 }
 
 // Open opens an existing store; readOnly allows many readers at once. A file that is not
@@ -132,14 +155,6 @@ func (s *Store) Stream() (int, error) {
 		return nil
 	})
 	return v, err
-}
-
-// setStream records the stream version of the records a store holds (a merge's output
-// takes its inputs').
-func (s *Store) setStream(v int) error {
-	return s.db.Update(func(tx *bolt.Tx) error {
-		return tx.Bucket(bucketMeta).Put([]byte("stream"), []byte{byte(v)})
-	})
 }
 
 // CheckStream returns an error unless this engine would simulate the store's replicates

@@ -94,3 +94,33 @@ func TestStoreRefusesForeignAndCorruptFiles(t *testing.T) {
 		t.Error("Create overwrote an existing store")
 	}
 }
+
+// OpenOrCreate makes the store and its folder when nothing is there, opens what is
+// there otherwise (keeping its spec), and refuses a file that is not a store, leaving it
+// as it was.
+func TestOpenOrCreate(t *testing.T) {
+	path := filepath.Join(t.TempDir(), "new", "folder", "sweep.db")
+	st, created, err := OpenOrCreate(path, []byte("spec v1"))
+	if err != nil || !created {
+		t.Fatalf("first call: created %v, error %v", created, err)
+	}
+	st.Close()
+	st, created, err = OpenOrCreate(path, []byte("spec v2"))
+	if err != nil || created {
+		t.Fatalf("second call: created %v, error %v", created, err)
+	}
+	if spec, _, err := st.Spec(); err != nil || string(spec) != "spec v1" {
+		t.Fatalf("spec %q (%v), want the first one kept", spec, err)
+	}
+	st.Close()
+	other := filepath.Join(t.TempDir(), "notes.db")
+	if err := os.WriteFile(other, []byte("not a store"), 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, _, err := OpenOrCreate(other, []byte("spec")); err == nil {
+		t.Fatal("a file that is not a store was opened")
+	}
+	if b, _ := os.ReadFile(other); string(b) != "not a store" {
+		t.Fatalf("the foreign file was changed to %q", b)
+	}
+}

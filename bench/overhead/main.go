@@ -10,7 +10,12 @@
 //   - cpu: the process CPU time (user+sys) of each phase, and 1 - direct/coordinated
 //     (less sensitive than wall time to other jobs on a shared machine);
 //   - gaps: 1 - (sum of the workers' task times)/(threads × coordinated wall), the time
-//     a thread held no task (leasing, submitting, waiting for the last tasks).
+//     a thread held no task (leasing, submitting, waiting for the last tasks);
+//   - tail: the part of gaps after the last task started, when idle threads had nothing
+//     left to take (with few tasks, mostly the uneven ends of the last ones), so that
+//     gaps - tail is the idle time while work was waiting: what coordination costs.
+//     Task intervals come from the Submit calls (a task's end is its Submit, its start
+//     that less the compute time the worker reports).
 package main
 
 import (
@@ -20,15 +25,57 @@ import (
 	"os"
 	"path/filepath"
 	"sort"
+	"sync"
 	"syscall"
 	"time"
 
 	"bbmx/coordinator"
 	"bbmx/coordinator/sweep"
 	"bbmx/engine"
+	pb "bbmx/proto/bbmx/v1"
 	"bbmx/results"
 	"bbmx/worker"
 )
+
+// timedClient records when each task simulated, from its Submit.
+type timedClient struct {
+	worker.Client
+	mu    sync.Mutex
+	spans [][2]time.Time
+}
+
+func (c *timedClient) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.SubmitReply, error) {
+	end := time.Now()
+	c.mu.Lock()
+	c.spans = append(c.spans, [2]time.Time{end.Add(-time.Duration(req.ComputeNs)), end})
+	c.mu.Unlock()
+	return c.Client.Submit(ctx, req)
+}
+
+// tail is the thread time left idle between the last task's start and end: threads
+// times that span, less the task time inside it.
+func tail(spans [][2]time.Time, threads int, end time.Time) time.Duration {
+	var last time.Time
+	for _, s := range spans {
+		if s[0].After(last) {
+			last = s[0]
+		}
+	}
+	idle := time.Duration(threads) * end.Sub(last)
+	for _, s := range spans {
+		if s[1].After(last) {
+			idle -= s[1].Sub(later(s[0], last))
+		}
+	}
+	return max(idle, 0)
+}
+
+func later(a, b time.Time) time.Time {
+	if a.After(b) {
+		return a
+	}
+	return b
+}
 
 func cpuTime() time.Duration {
 	var ru syscall.Rusage
@@ -62,10 +109,12 @@ func main() {
 	var tasks int
 	var taskTime time.Duration
 	fmt.Printf("sweep %s, %d cells, %d threads, keep_records %v\n", *path, len(sw.Cells()), *threads, sw.KeepRecords)
-	fmt.Println("repeat  coordinated wall  direct wall  wall overhead  coordinated cpu  direct cpu  cpu overhead  gaps")
-	var wallO, cpuO, gapO []float64
+	fmt.Println("repeat  coordinated wall  direct wall  wall overhead  coordinated cpu  direct cpu  cpu overhead  gaps    tail")
+	var wallO, cpuO, gapO, tailO []float64
 	for rep := 0; rep < *repeats; rep++ {
 		var stats worker.Stats
+		var tc *timedClient
+		var end time.Time
 		co, err := measure(func() error {
 			st, err := results.Create(filepath.Join(tmp, fmt.Sprintf("r%d.db", rep)), sw.Canonical())
 			if err != nil {
@@ -77,7 +126,9 @@ func main() {
 				return err
 			}
 			defer c.Close()
-			stats, err = worker.Run(ctx, c, worker.Options{Threads: *threads})
+			tc = &timedClient{Client: c}
+			stats, err = worker.Run(ctx, tc, worker.Options{Threads: *threads})
+			end = time.Now()
 			if err != nil {
 				return err
 			}
@@ -105,13 +156,14 @@ func main() {
 		w := 1 - direct.wall.Seconds()/co.wall.Seconds()
 		c := 1 - direct.cpu.Seconds()/co.cpu.Seconds()
 		g := 1 - stats.Compute.Seconds()/(float64(*threads)*co.wall.Seconds())
-		wallO, cpuO, gapO = append(wallO, w), append(cpuO, c), append(gapO, g)
-		fmt.Printf("%6d  %16s  %11s  %12.2f%%  %15s  %10s  %11.2f%%  %5.2f%%\n", rep+1,
+		tl := tail(tc.spans, *threads, end).Seconds() / (float64(*threads) * co.wall.Seconds())
+		wallO, cpuO, gapO, tailO = append(wallO, w), append(cpuO, c), append(gapO, g), append(tailO, tl)
+		fmt.Printf("%6d  %16s  %11s  %12.2f%%  %15s  %10s  %11.2f%%  %5.2f%%  %5.2f%%\n", rep+1,
 			co.wall.Round(time.Millisecond), direct.wall.Round(time.Millisecond), 100*w,
-			co.cpu.Round(time.Millisecond), direct.cpu.Round(time.Millisecond), 100*c, 100*g)
+			co.cpu.Round(time.Millisecond), direct.cpu.Round(time.Millisecond), 100*c, 100*g, 100*tl)
 	}
-	fmt.Printf("%d tasks per run of %s each on average; median (min..max) over %d repeats: wall %s, cpu %s, gaps %s\n",
-		tasks, taskTime.Round(time.Millisecond), *repeats, spread(wallO), spread(cpuO), spread(gapO))
+	fmt.Printf("%d tasks per run of %s each on average; median (min..max) over %d repeats: wall %s, cpu %s, gaps %s, tail %s\n",
+		tasks, taskTime.Round(time.Millisecond), *repeats, spread(wallO), spread(cpuO), spread(gapO), spread(tailO))
 }
 
 func spread(xs []float64) string {

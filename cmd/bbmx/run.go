@@ -17,6 +17,7 @@ import (
 
 	"bbmx/coordinator"
 	"bbmx/engine"
+	"bbmx/results"
 	"bbmx/worker"
 )
 
@@ -112,7 +113,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 			return err
 		}
 	}
-	st, created, err := openSweepStore(*storePath, sw)
+	st, created, err := results.OpenOrCreate(*storePath, sw.Canonical())
 	if err != nil {
 		return err
 	}

@@ -16,6 +16,7 @@ import (
 	"github.com/prometheus/client_golang/prometheus/promhttp"
 
 	"bbmx/coordinator"
+	"bbmx/results"
 )
 
 func init() {
@@ -73,7 +74,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	log := newLogger(stderr, *verbose)
-	st, _, err := openSweepStore(*storePath, sw)
+	st, _, err := results.OpenOrCreate(*storePath, sw.Canonical())
 	if err != nil {
 		return err
 	}

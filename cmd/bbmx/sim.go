@@ -5,11 +5,9 @@ import (
 	"context"
 	"encoding/hex"
 	"encoding/json"
-	"errors"
 	"flag"
 	"fmt"
 	"io"
-	"io/fs"
 	"math"
 	"os"
 	"os/signal"
@@ -295,11 +293,8 @@ func writeRecordsJSONL(path string, recs []engine.Record) error {
 
 // addToStore commits one sim run's records to a store, creating it if needed.
 func addToStore(path string, c engine.Cell, seed, first uint64, recs []engine.Record) error {
-	st, err := results.Open(path, false)
-	if errors.Is(err, fs.ErrNotExist) {
-		spec, _ := json.Marshal(map[string]any{"made_by": "bbmx sim", "model": c.Model})
-		st, err = results.Create(path, spec)
-	}
+	spec, _ := json.Marshal(map[string]any{"made_by": "bbmx sim", "model": c.Model})
+	st, _, err := results.OpenOrCreate(path, spec)
 	if err != nil {
 		return err
 	}

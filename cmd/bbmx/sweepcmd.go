@@ -1,18 +1,14 @@
 package main
 
 import (
-	"errors"
 	"fmt"
 	"io"
-	"io/fs"
 	"log/slog"
-	"os"
 	"path/filepath"
 	"strings"
 	"time"
 
 	"bbmx/coordinator/sweep"
-	"bbmx/results"
 )
 
 // Shared pieces of the commands that run sweeps (run, serve).
@@ -46,22 +42,6 @@ func checkCost(sw *sweep.Sweep, force bool, stderr io.Writer) (sweep.Estimate, e
 func defaultStorePath(sweepPath, suffix string) string {
 	stem := strings.TrimSuffix(filepath.Base(sweepPath), filepath.Ext(sweepPath))
 	return filepath.Join("bbmx-data", stem+suffix+".db")
-}
-
-// openSweepStore opens the store at path, creating it (and its folder) for sw if it
-// does not exist yet.
-func openSweepStore(path string, sw *sweep.Sweep) (*results.Store, bool, error) {
-	st, err := results.Open(path, false)
-	if errors.Is(err, fs.ErrNotExist) {
-		if dir := filepath.Dir(path); dir != "." {
-			if err := os.MkdirAll(dir, 0o755); err != nil {
-				return nil, false, err
-			}
-		}
-		st, err = results.Create(path, sw.Canonical())
-		return st, true, err
-	}
-	return st, false, err
 }
 
 // newLogger logs to stderr as text, one line per event.

@@ -143,7 +143,7 @@ func (b *builder) cell(c *cellData) error {
 			b.skip(g, "moments", err.Error())
 		}
 	} else if n >= 2 {
-		mean, sd, seMean, seSD := sketchMoments(c.sk)
+		mean, sd, seMean, seSD := c.sk.ShiftMoments()
 		b.row(b.estimate(g, "mean of R*_T - m_T", mean, seMean, "exact sums of the sketch ± z·SE", n))
 		b.row(b.estimate(g, "sd of R*_T - m_T", sd, seSD, "exact sums of the sketch, delta-method SE", n))
 		b.skip(g, "skewness", "its standard error needs the records (keep_records = false)")
@@ -158,7 +158,8 @@ func (b *builder) cell(c *cellData) error {
 		}
 	}
 
-	// Quantiles, compared with the exact law's.
+	// Quantiles, compared with the exact law's; the median is kept for the centring fit.
+	c.median, c.medianSE = nan, nan
 	for _, p := range []float64{0.1, 0.5, 0.9} {
 		q := fmt.Sprintf("%g-quantile of R*_T - m_T", p)
 		var r Row
@@ -170,6 +171,9 @@ func (b *builder) cell(c *cellData) error {
 			}
 			r = Row{Group: g, Quantity: q, Estimate: qe.Value, Lo: qe.Lo, Hi: qe.Hi, P: nan, N: n,
 				Method: "order statistic, distribution-free interval"}
+			if p == 0.5 {
+				c.median, c.medianSE = qe.Value, qe.SE
+			}
 		} else {
 			v, lo, hi, err := histQuantile(c.sk.ShiftHist, p, b.opt.z())
 			if err != nil {
@@ -178,6 +182,9 @@ func (b *builder) cell(c *cellData) error {
 			}
 			r = Row{Group: g, Quantity: q, Estimate: v, Lo: lo, Hi: hi, P: nan, N: n,
 				Method: "fine histogram, normal-approximation ranks"}
+			if p == 0.5 {
+				c.median, c.medianSE = v, (hi-lo)/(2*b.opt.z())
+			}
 		}
 		if tab != nil {
 			if v := invert(tab, p); !math.IsNaN(v) {
@@ -289,23 +296,6 @@ func (b *builder) tailSlope(xs []float64) (tailFit, error) {
 		return tailFit{}, err
 	}
 	return tailFit{rate: r, slope: -r.Rate, iv: iv}, nil
-}
-
-// sketchMoments returns the mean and sd of R*_T - m_T from the sketch's exact power
-// sums, with the standard errors s/sqrt n and sqrt((m4 - m2^2)/(4 m2 n)) (delta method).
-func sketchMoments(sk *results.Sketch) (mean, sd, seMean, seSD float64) {
-	n := float64(sk.N)
-	mean = sk.Shift[0].Float64() / n
-	s2, s3, s4 := sk.Shift[1].Float64()/n, sk.Shift[2].Float64()/n, sk.Shift[3].Float64()/n
-	m2 := s2 - mean*mean
-	m4 := s4 - 4*mean*s3 + 6*mean*mean*s2 - 3*mean*mean*mean*mean
-	m2 = math.Max(m2, 0)
-	sd = math.Sqrt(m2 * n / (n - 1))
-	seMean = sd / math.Sqrt(n)
-	if m2 > 0 {
-		seSD = math.Sqrt(math.Max(m4-m2*m2, 0) / (4 * m2 * n))
-	}
-	return mean, sd, seMean, seSD
 }
 
 // histQuantile returns the p-quantile of the values binned in the sketch's fine

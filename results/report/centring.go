@@ -15,7 +15,8 @@ type horizonPoint struct {
 }
 
 // centringSeries returns per horizon the median and the mean of R*_T of the cells of
-// one model; cells sharing a horizon are not pooled (the first is used).
+// one model; cells sharing a horizon are not pooled (the first is used). The medians are
+// those builder.cell estimated.
 func (b *builder) centringSeries(cs []*cellData) (med, mean []horizonPoint) {
 	seen := map[float64]bool{}
 	for _, c := range cs {
@@ -25,25 +26,11 @@ func (b *builder) centringSeries(cs []*cellData) (med, mean []horizonPoint) {
 		}
 		seen[T] = true
 		centre := c.cell.Model.Centring(T)
-		var mq, mse float64
-		if len(c.reps) > 0 {
-			q, err := fit.Quantile(c.shifts(), 0.5, b.opt.Level)
-			if err != nil {
-				continue
-			}
-			mq, mse = q.Value, q.SE
-		} else {
-			v, lo, hi, err := histQuantile(c.sk.ShiftHist, 0.5, b.opt.z())
-			if err != nil {
-				continue
-			}
-			mq, mse = v, (hi-lo)/(2*b.opt.z())
-		}
 		mv, mvse := c.sk.MeanShift()
-		if !(mse > 0) || !(mvse > 0) {
+		if !(c.medianSE > 0) || !(mvse > 0) {
 			continue
 		}
-		med = append(med, horizonPoint{T, centre + mq, mse})
+		med = append(med, horizonPoint{T, centre + c.median, c.medianSE})
 		mean = append(mean, horizonPoint{T, centre + mv, mvse})
 	}
 	return med, mean

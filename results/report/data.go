@@ -31,6 +31,9 @@ type cellData struct {
 	// partial is the number of records found when they did not cover every replicate
 	// (they are then ignored).
 	partial int
+	// median of R*_T - m_T and its standard error, set by builder.cell (NaN if it could
+	// not be estimated) for the centring fit
+	median, medianSE float64
 }
 
 // loadCells reads every cell with at least one replicate, sorted by model, then horizon.

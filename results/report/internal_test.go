@@ -54,7 +54,7 @@ func TestSketchEstimatesCoverage(t *testing.T) {
 	for i := 0; i < trials; i++ {
 		xs := gumbelSample(rng, n, mu, beta)
 		sk := sketchOf(t, xs)
-		mean, sd, seMean, seSD := sketchMoments(sk)
+		mean, sd, seMean, seSD := sk.ShiftMoments()
 		if math.Abs(mean-want.Mean()) > z*seMean {
 			miss["mean"]++
 		}
@@ -90,7 +90,7 @@ func TestSketchEstimatesCoverage(t *testing.T) {
 func TestSketchMomentsGumbelHandbook(t *testing.T) {
 	const mu, beta = -1.2, 0.7071067811865476
 	xs := gumbelSample(rand.New(rand.NewPCG(3, 4)), 100000, mu, beta)
-	mean, sd, seMean, seSD := sketchMoments(sketchOf(t, xs))
+	mean, sd, seMean, seSD := sketchOf(t, xs).ShiftMoments()
 	wantMean := mu + 0.5772156649015329*beta // Euler-Mascheroni constant, from memory (matches fit.EulerGamma)
 	wantSD := math.Pi * beta / math.Sqrt(6)
 	if math.Abs(mean-wantMean) > 4*seMean {
@@ -238,15 +238,21 @@ func TestCentringRecovery(t *testing.T) {
 	miss := map[string]int{}
 	for trial := 0; trial < 100; trial++ {
 		var cs []*cellData
+		b := testBuilder(t)
 		for _, T := range []float64{2, 4, 8, 16, 32, 64} {
 			xs := gumbelSample(rng, 300, 0.3, 0.7)
 			c := &cellData{cell: engine.Cell{Model: m, Horizon: T}, sk: sketchOf(t, xs)}
 			for _, x := range xs {
 				c.reps = append(c.reps, replicate{x: x})
 			}
+			// the median as builder.cell estimates it from records
+			q, err := fit.Quantile(xs, 0.5, b.opt.Level)
+			if err != nil {
+				t.Fatal(err)
+			}
+			c.median, c.medianSE = q.Value, q.SE
 			cs = append(cs, c)
 		}
-		b := testBuilder(t)
 		if _, ok := b.fitCentring(cs); !ok {
 			t.Fatalf("no fit: %v", b.rep.Skipped)
 		}
