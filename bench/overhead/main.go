@@ -109,7 +109,7 @@ func main() {
 	var tasks int
 	var taskTime time.Duration
 	fmt.Printf("sweep %s, %d cells, %d threads, keep_records %v\n", *path, len(sw.Cells()), *threads, sw.KeepRecords)
-	fmt.Println("repeat  coordinated wall  direct wall  wall overhead  coordinated cpu  direct cpu  cpu overhead  gaps    tail")
+	fmt.Println("repeat  coordinated wall  direct wall  wall overhead  coordinated cpu  direct cpu  cpu overhead  gaps    tail  gaps-tail")
 	var wallO, cpuO, gapO, tailO []float64
 	for rep := 0; rep < *repeats; rep++ {
 		var stats worker.Stats
@@ -158,9 +158,9 @@ func main() {
 		g := 1 - stats.Compute.Seconds()/(float64(*threads)*co.wall.Seconds())
 		tl := tail(tc.spans, *threads, end).Seconds() / (float64(*threads) * co.wall.Seconds())
 		wallO, cpuO, gapO, tailO = append(wallO, w), append(cpuO, c), append(gapO, g), append(tailO, tl)
-		fmt.Printf("%6d  %16s  %11s  %12.2f%%  %15s  %10s  %11.2f%%  %5.2f%%  %5.2f%%\n", rep+1,
+		fmt.Printf("%6d  %16s  %11s  %12.2f%%  %15s  %10s  %11.2f%%  %5.2f%%  %5.2f%%  %8.3f%%\n", rep+1,
 			co.wall.Round(time.Millisecond), direct.wall.Round(time.Millisecond), 100*w,
-			co.cpu.Round(time.Millisecond), direct.cpu.Round(time.Millisecond), 100*c, 100*g, 100*tl)
+			co.cpu.Round(time.Millisecond), direct.cpu.Round(time.Millisecond), 100*c, 100*g, 100*tl, 100*(g-tl))
 	}
 	fmt.Printf("%d tasks per run of %s each on average; median (min..max) over %d repeats: wall %s, cpu %s, gaps %s, tail %s\n",
 		tasks, taskTime.Round(time.Millisecond), *repeats, spread(wallO), spread(cpuO), spread(gapO), spread(tailO))
