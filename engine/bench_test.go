@@ -7,8 +7,14 @@ import (
 )
 
 // BenchmarkNode reports the engine's cost per tree node (T = 10, no checkpoints).
-func BenchmarkNode(b *testing.B) {
-	for _, d := range []int{1, 2, 3} {
+func BenchmarkNode(b *testing.B) { benchNodes(b, 1, 2, 3) }
+
+// BenchmarkNodeByDim is BenchmarkNode in higher dimensions (the general walk, node), the
+// figures behind the cost model's NodeSeconds.
+func BenchmarkNodeByDim(b *testing.B) { benchNodes(b, 4, 6, 10, 20, 40) }
+
+func benchNodes(b *testing.B, dims ...int) {
+	for _, d := range dims {
 		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
 			c := Cell{Model: Model{Dim: d, Sigma: 1, Beta: 1, Children: 2}, Horizon: 10}.WithDefaults()
 			w := newWalker(c)

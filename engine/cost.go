@@ -8,11 +8,24 @@ package engine
 // about 170 CPU-hours at NominalNodeSeconds.
 const AbsurdNodes = 1e13
 
-// NominalNodeSeconds is a deliberately round per-node cost used for estimates shown
-// before a run and for task sizing, on the safe side of the measured figures in
-// BENCHMARKS.md (about 25-40, 30-50 and 35-55 ns per node in d = 1, 2, 3 on the shared
-// development machines, depending on their load).
+// NominalNodeSeconds is a deliberately round per-node cost in d <= 3, used for estimates
+// shown before a run and for task sizing, on the safe side of the measured figures in
+// BENCHMARKS.md (about 25-45 ns per node in d = 1, 2, 3 on the shared development
+// machines, depending on their load). NodeSeconds extends it to every dimension.
 const NominalNodeSeconds = 60e-9
+
+// NodeSeconds is the cost model's time per tree node in dimension d: NominalNodeSeconds
+// up to d = 3 (the walk with positions in registers), then 90 ns at d = 4 plus 14 ns per
+// further coordinate (the general walk draws, adds and squares one normal per
+// coordinate). Measured: about 1.5, 1.8, 2.7, 4.7 and 9.8 times the d = 3 cost at d = 4,
+// 6, 10, 20 and 40 (BENCHMARKS.md, "cost per node by dimension"); this keeps the same
+// margin over them as NominalNodeSeconds has at d <= 3.
+func NodeSeconds(d int) float64 {
+	if d <= 3 {
+		return NominalNodeSeconds
+	}
+	return 90e-9 + float64(float64(d-4)*14e-9)
+}
 
 // AbsurdSweepNodes is the same limit for a sweep run on a cluster (`bbmx plan`, the
 // coordinator): about 17,000 CPU-hours at NominalNodeSeconds, more than one sweep of a
@@ -21,14 +34,14 @@ const NominalNodeSeconds = 60e-9
 const AbsurdSweepNodes = 1e15
 
 // NominalReplicateSeconds is the cost model's CPU time of one replicate of cell c: its
-// expected nodes at NominalNodeSeconds, plus the fixed work of a replicate (its record)
+// expected nodes at NodeSeconds, plus the fixed work of a replicate (its record)
 // and of each checkpoint (the exact sums of Z_s, W_s and Z_s(u) on the direction grid),
 // which dominate at short horizons. The fixed parts are round figures from
 // BENCHMARKS.md ("per-replicate overhead").
 func NominalReplicateSeconds(c Cell) float64 {
 	c = c.WithDefaults()
 	perCheckpoint := 2e-6 + float64(1e-6*float64(c.NumDirections()))
-	return float64(c.Model.ExpectedNodes(c.Horizon)*NominalNodeSeconds) + 5e-6 + float64(perCheckpoint*float64(len(c.Observe.Checkpoints)))
+	return float64(c.Model.ExpectedNodes(c.Horizon)*NodeSeconds(c.Model.Dim)) + 5e-6 + float64(perCheckpoint*float64(len(c.Observe.Checkpoints)))
 }
 
 // RecordBytes estimates the size of one replicate record of cell c, for bounding the

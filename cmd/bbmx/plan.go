@@ -57,8 +57,8 @@ func num(x float64) any {
 }
 
 const planNote = "estimates from the cost model: (k e^{gT} - 1)/(k - 1) expected tree nodes per replicate " +
-	"at a nominal %.0f ns per node, plus a few microseconds per replicate and per checkpoint; node counts are random " +
-	"and real speed depends on the machine and d"
+	"at a nominal %.0f ns per node in d <= 3 (%.0f ns at d = 4, %.0f ns more per further dimension), plus a few " +
+	"microseconds per replicate and per checkpoint; node counts are random and real speed depends on the machine"
 
 func runPlan(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("plan", "SWEEP.toml [--cores N] [--json] [--force]",
@@ -74,8 +74,8 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 			"             particles alive at s0; the merged result is bit-identical to an unsplit run)\n"+
 			"  CPU-h      the cell's CPU-hours\n\n"+
 			"and the totals, with the wall time on --cores cores if the work spreads evenly. All\n"+
-			"figures are estimates from the cost model, not measurements. A sweep above about\n"+
-			fmt.Sprintf("%.0f CPU-hours (%.0g tree nodes) is refused (exit status 2) unless --force is given:\n", engine.AbsurdSweepNodes*engine.NominalNodeSeconds/3600, engine.AbsurdSweepNodes)+
+			"figures are estimates from the cost model, not measurements. A sweep above\n"+
+			fmt.Sprintf("%.0g tree nodes (about %.0f CPU-hours in d <= 3) is refused (exit status 2) unless --force is given:\n", engine.AbsurdSweepNodes, engine.AbsurdSweepNodes*engine.NodeSeconds(3)/3600)+
 			"the cost grows like e^{gT}, so a mistyped horizon shows up here.\n\n"+
 			"The file (TOML; defaults in brackets): seed (required), name, task_seconds [60],\n"+
 			"keep_records [true], split_at [0: automatic]; [model] sigma [1], beta [1], children [2];\n"+
@@ -119,7 +119,8 @@ func makePlan(sw *sweep.Sweep, est sweep.Estimate, path string, cores int) planS
 		TaskSeconds: sw.TaskSeconds, Cores: cores, Absurd: est.Absurd,
 		Nodes: num(est.Nodes), CPUHours: num(est.CPUSeconds / 3600),
 		WallHours: num(est.CPUSeconds / 3600 / float64(cores)),
-		Note:      fmt.Sprintf(planNote, engine.NominalNodeSeconds*1e9)}
+		Note: fmt.Sprintf(planNote, engine.NodeSeconds(3)*1e9, engine.NodeSeconds(4)*1e9,
+			(engine.NodeSeconds(5)-engine.NodeSeconds(4))*1e9)}
 	for _, c := range sw.Cells() {
 		z := sw.Size(c)
 		nodes := c.Cell.Model.ExpectedNodes(c.Cell.Horizon)

@@ -94,6 +94,16 @@ func TestEstimate(t *testing.T) {
 	if got, want := s3.Estimate().Nodes, 7*expectedNodes(0.5, 3, 5); math.Abs(got-want) > 1e-9*want {
 		t.Fatalf("k = 3: nodes %v, want %v", got, want)
 	}
+	// In d = 10 a node costs 90 + 6 × 14 = 174 ns (the general walk: one normal per
+	// coordinate; engine.NodeSeconds's rule), against 60 ns in d <= 3.
+	s10 := mustParse(t, "seed = 1\n[grid]\ndims = [3, 10]\nhorizons = [6]\nreplicates = 10\n", "d10.toml")
+	for _, c := range s10.Cells() {
+		perNode := map[int]float64{3: 60e-9, 10: 174e-9}[c.Cell.Model.Dim]
+		want := expectedNodes(1, 2, 6)*perNode + 5e-6 // no checkpoints
+		if got := engine.NominalReplicateSeconds(c.Cell); math.Abs(got-want) > 1e-9*want {
+			t.Fatalf("%s: %v CPU-seconds per replicate, want %v", c.ID, got, want)
+		}
+	}
 	// A horizon of 40 at a million replicates is about 4.7e23 nodes: absurd.
 	big := mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1000000\n", "big.toml")
 	if !big.Estimate().Absurd {
@@ -119,8 +129,8 @@ func TestSizeWholeReplicates(t *testing.T) {
 		t  float64
 	}{{"d2-T4", 4}, {"d2-T14", 14}} {
 		cs := cellOf(t, s, c.id)
-		cost := expectedNodes(1, 2, c.t)*engine.NominalNodeSeconds + 5e-6 // no checkpoints
-		per := uint64(math.Floor(60 / cost))                              // derived from the rule in Size's comment
+		cost := expectedNodes(1, 2, c.t)*engine.NodeSeconds(2) + 5e-6 // no checkpoints
+		per := uint64(math.Floor(60 / cost))                          // derived from the rule in Size's comment
 		per = min(per, uint64(engine.MaxTaskResultBytes/engine.RecordBytes(cs.Cell)))
 		z := s.Size(cs)
 		if z.Parts != 1 || z.SplitAt != 0 || z.PerTask != per {

@@ -81,7 +81,7 @@ func (z Sizing) Tasks(replicates uint64) uint64 {
 
 // Estimate totals the cost model over the cells. The figures are estimates: the node
 // count of a replicate is random (its mean is Model.ExpectedNodes) and the time per node
-// is the nominal engine.NominalNodeSeconds, not a measurement on this machine. Absurd is
+// is the nominal engine.NodeSeconds, not a measurement on this machine. Absurd is
 // Nodes > engine.AbsurdSweepNodes, the cluster-sized limit (engine.AbsurdNodes, the one
 // for a run on one machine, is a hundred times lower).
 func (s *Sweep) Estimate() Estimate {
