@@ -1,5 +1,7 @@
 package engine
 
+import "math"
+
 // The ziggurat's wedge test accepts a candidate x of strip i when a uniform height a
 // (a float32) lies under the density: a < float32(e^-q), with q = x for the exponential
 // and q = x²/2 for the normal. Computing e^-q is most of the cost of a rejection step
@@ -40,15 +42,16 @@ func (w *wedge) squeeze(q, h float64) (below, sure bool) {
 	return false, false
 }
 
-// newWedge is the squeeze for q in [qLo, qHi]; an empty or reversed range gives a
-// squeeze whose chord test never applies.
+// newWedge is the squeeze for q in [qLo, qHi]. An empty range (no strip of the tables
+// has one) gives a squeeze of NaNs, every comparison with which is false: it is never
+// sure, and the exact test decides.
 func newWedge(qLo, qHi float64) wedge {
-	w := wedge{qLo: qLo, qHi: qHi, eLo: pexp(-qLo), eHi: pexp(-qHi)}
-	if qHi > qLo {
-		w.slope = (w.eHi - w.eLo) / (qHi - qLo)
-	} else {
-		w.qLo, w.qHi = 1, 0 // no q passes the range test
+	if !(qHi > qLo) {
+		nan := math.NaN()
+		return wedge{nan, nan, nan, nan, nan}
 	}
+	w := wedge{qLo: qLo, qHi: qHi, eLo: pexp(-qLo), eHi: pexp(-qHi)}
+	w.slope = (w.eHi - w.eLo) / (qHi - qLo)
 	return w
 }
 

@@ -16,7 +16,7 @@ func TestWedgeSqueeze(t *testing.T) {
 	var tests, decided int
 	check := func(name string, i int, w *wedge, fHi, fLo float32) {
 		if !(w.qHi > w.qLo) {
-			return // no candidates reach the wedge test through the chord
+			t.Fatalf("%s strip %d: empty range [%v, %v]", name, i, w.qLo, w.qHi)
 		}
 		for n := 0; n < 400; n++ {
 			q := w.qLo + r.Float64()*(w.qHi-w.qLo)
@@ -52,4 +52,9 @@ func TestWedgeSqueeze(t *testing.T) {
 		t.Errorf("the squeeze decided %d of %d tests (%.2f of the spread heights' count): too few to be worth it", decided, tests, share)
 	}
 	t.Logf("squeeze decided %d of %d tests", decided, tests)
+	// A squeeze over an empty range is never sure.
+	empty := newWedge(2, 1)
+	if _, sure := empty.squeeze(1.5, 0.01); sure {
+		t.Error("the squeeze of an empty range decided a test")
+	}
 }

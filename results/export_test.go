@@ -2,6 +2,7 @@ package results
 
 import (
 	"encoding/csv"
+	"encoding/json"
 	"os"
 	"path/filepath"
 	"reflect"
@@ -50,5 +51,27 @@ func TestExportRoundTrips(t *testing.T) {
 	}
 	if err := st.ExportRecords(filepath.Join(dir, "x"), "xls"); err == nil {
 		t.Fatal("unknown format accepted")
+	}
+}
+
+// A cell of one replicate has no spread to estimate; its summary still exports as valid
+// JSON (which has no NaN), with a standard error of 0.
+func TestExportCellsOneReplicate(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "s.db")
+	storeWith(t, path, 8, 0, 1)
+	st, err := Open(path, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	out := filepath.Join(dir, "cells.json")
+	if err := st.ExportCells(out, "json"); err != nil {
+		t.Fatal(err)
+	}
+	b, _ := os.ReadFile(out)
+	var rows []CellRow
+	if err := json.Unmarshal(b, &rows); err != nil || len(rows) != 1 || rows[0].Replicates != 1 || rows[0].SEMeanShift != 0 {
+		t.Fatalf("rows %+v (%v) from %s", rows, err, b)
 	}
 }

@@ -206,9 +206,13 @@ func (s *Sketch) Merge(o *Sketch) error {
 	return nil
 }
 
-// MeanShift returns the mean of R*_T - m_T and its standard error.
+// MeanShift returns the mean of R*_T - m_T and its standard error; the error is 0 for a
+// single replicate (summaries and exports need a number there: JSON has no NaN).
 func (s *Sketch) MeanShift() (mean, se float64) {
 	mean, _, se, _ = s.ShiftMoments()
+	if s.N == 1 {
+		se = 0
+	}
 	return mean, se
 }
 
