@@ -52,8 +52,8 @@ func (c *timedClient) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 	return c.Client.Submit(ctx, req)
 }
 
-// tail is the thread time left idle between the last task's start and end: threads
-// times that span, less the task time inside it.
+// tail is the thread time left idle from the last task's start to the run's end: the
+// threads times that span, less the task time inside it.
 func tail(spans [][2]time.Time, threads int, end time.Time) time.Duration {
 	var last time.Time
 	for _, s := range spans {
