@@ -471,6 +471,30 @@ func TestDigestStableAndSeeded(t *testing.T) {
 	}
 }
 
+// pinnedDigestHighDim pins the general walk (node) above d = 3, which the d = 2 digest
+// and TestNode3MatchesNode do not reach: normals from the fourth on, cut at checkpoints
+// and not (random-stream 3, record format 1).
+const pinnedDigestHighDim = "6a9966e7865fcf7f4f6e0724264ffb65e0525c07162767196608813239705fdf"
+
+// TestDigestHighDim: the digest of fixed replicates in d = 5 (with checkpoints) and d = 7
+// (without) is pinned. Deterministic.
+func TestDigestHighDim(t *testing.T) {
+	var recs []engine.Record
+	for _, c := range []engine.Cell{splitCell(5), stdCell(7, 4, engine.Observe{TopK: 4})} {
+		for rep := uint64(0); rep < 10; rep++ {
+			r, err := engine.Simulate(c, 2026, rep)
+			if err != nil {
+				t.Fatal(err)
+			}
+			recs = append(recs, r)
+		}
+	}
+	d := engine.RecordsDigest(recs)
+	if got := hex.EncodeToString(d[:]); got != pinnedDigestHighDim {
+		t.Errorf("digest %s, pinned %s", got, pinnedDigestHighDim)
+	}
+}
+
 // TestRecordRoundTrip: DecodeRecord inverts AppendBinary, and truncated or corrupt bytes
 // give an error (never a panic). Deterministic.
 func TestRecordRoundTrip(t *testing.T) {
