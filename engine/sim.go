@@ -368,13 +368,23 @@ func (w *walker) node(k key, birth float64, pos []float64, depth int) {
 		until := min(death, w.horizon)
 		if birth > w.lastCheck {
 			// No checkpoint to cut at (most nodes): one increment, normals 0 to d-1.
-			// This is move's body written out on purpose (move does not inline); keep
-			// the two the same.
+			// This is move's body written out on purpose (move does not inline), with
+			// normalWord unrolled: keep the two the same.
 			end = end[:len(pos)]
 			if dt := until - birth; dt > 0 {
 				sd := w.sigma * math.Sqrt(dt)
-				for i := range pos {
-					u := normalWord(k, uint64(i))
+				words := [2]uint64{k.lo, spareWord(k)}
+				for i := range min(len(pos), 2) {
+					z, ok := zigNormal(words[i])
+					if !ok {
+						z = w.rng.normSlow(words[i])
+					}
+					end[i] = pos[i] + float64(sd*z)
+				}
+				v := k.lo + normal2Gamma // normal n's word is mix64(k.lo + n*normalGamma), n >= 2
+				for i := 2; i < len(pos); i++ {
+					u := mix64(v)
+					v += normalGamma
 					z, ok := zigNormal(u)
 					if !ok {
 						z = w.rng.normSlow(u)
