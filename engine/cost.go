@@ -15,16 +15,16 @@ const AbsurdNodes = 1e13
 const NominalNodeSeconds = 60e-9
 
 // NodeSeconds is the cost model's time per tree node in dimension d: NominalNodeSeconds
-// up to d = 3 (the walk with positions in registers), then 90 ns at d = 4 plus 14 ns per
+// up to d = 3 (the walk with positions in registers), then 85 ns at d = 4 plus 13 ns per
 // further coordinate (the general walk draws, adds and squares one normal per
-// coordinate). Measured: about 1.5, 1.8, 2.7, 4.7 and 9.8 times the d = 3 cost at d = 4,
-// 6, 10, 20 and 40 (BENCHMARKS.md, "cost per node by dimension"); this keeps the same
-// margin over them as NominalNodeSeconds has at d <= 3.
+// coordinate). Measured: about 1.4, 1.7, 2.5, 4.1 and 8.1-9.1 times the d = 3 cost at
+// d = 4, 6, 10, 20 and 40 (BENCHMARKS.md, "cost per node by dimension"); this keeps at
+// least the margin over them that NominalNodeSeconds has at d <= 3.
 func NodeSeconds(d int) float64 {
 	if d <= 3 {
 		return NominalNodeSeconds
 	}
-	return 90e-9 + float64(float64(d-4)*14e-9)
+	return 85e-9 + float64(float64(d-4)*13e-9)
 }
 
 // AbsurdSweepNodes is the same limit for a sweep run on a cluster (`bbmx plan`, the

@@ -94,11 +94,11 @@ func TestEstimate(t *testing.T) {
 	if got, want := s3.Estimate().Nodes, 7*expectedNodes(0.5, 3, 5); math.Abs(got-want) > 1e-9*want {
 		t.Fatalf("k = 3: nodes %v, want %v", got, want)
 	}
-	// In d = 10 a node costs 90 + 6 × 14 = 174 ns (the general walk: one normal per
+	// In d = 10 a node costs 85 + 6 × 13 = 163 ns (the general walk: one normal per
 	// coordinate; engine.NodeSeconds's rule), against 60 ns in d <= 3.
 	s10 := mustParse(t, "seed = 1\n[grid]\ndims = [3, 10]\nhorizons = [6]\nreplicates = 10\n", "d10.toml")
 	for _, c := range s10.Cells() {
-		perNode := map[int]float64{3: 60e-9, 10: 174e-9}[c.Cell.Model.Dim]
+		perNode := map[int]float64{3: 60e-9, 10: 163e-9}[c.Cell.Model.Dim]
 		want := expectedNodes(1, 2, 6)*perNode + 5e-6 // no checkpoints
 		if got := engine.NominalReplicateSeconds(c.Cell); math.Abs(got-want) > 1e-9*want {
 			t.Fatalf("%s: %v CPU-seconds per replicate, want %v", c.ID, got, want)
