@@ -34,14 +34,28 @@ func NodeSeconds(d int) float64 {
 const AbsurdSweepNodes = 1e15
 
 // NominalReplicateSeconds is the cost model's CPU time of one replicate of cell c: its
-// expected nodes at NodeSeconds, plus the fixed work of a replicate (its record)
-// and of each checkpoint (the exact sums of Z_s, W_s and Z_s(u) on the direction grid),
-// which dominate at short horizons. The fixed parts are round figures from
-// BENCHMARKS.md ("per-replicate overhead").
+// expected nodes at NodeSeconds, a fixed 5 µs for its record, and for each checkpoint s
+// a fixed 2 µs plus CrossingSeconds for each of the E[N_s] = e^{g s} particles alive at
+// s. A checkpoint near the horizon can cost several times the walk itself: every particle
+// crossing it adds its terms of Z_s, W_s and of Z_s(u) on each direction of the grid.
 func NominalReplicateSeconds(c Cell) float64 {
 	c = c.WithDefaults()
-	perCheckpoint := 2e-6 + float64(1e-6*float64(c.NumDirections()))
-	return float64(c.Model.ExpectedNodes(c.Horizon)*NodeSeconds(c.Model.Dim)) + 5e-6 + float64(perCheckpoint*float64(len(c.Observe.Checkpoints)))
+	sec := float64(c.Model.ExpectedNodes(c.Horizon)*NodeSeconds(c.Model.Dim)) + 5e-6
+	crossing := CrossingSeconds(c.Model.Dim, c.NumDirections())
+	for _, s := range c.Observe.Checkpoints {
+		sec += 2e-6 + float64(c.Model.MeanPopulation(s)*crossing)
+	}
+	return sec
+}
+
+// CrossingSeconds is the cost model's time for one particle crossing a checkpoint in
+// dimension d with a grid of dirs directions: 0.5 µs for its Z_s and W_s terms (three
+// Φ_d and two exponentials), and per direction 50 ns plus 5 ns per coordinate (a dot
+// product, an exponential and an exact sum). On the safe side of the measured figures
+// (BENCHMARKS.md, "cost of a checkpoint crossing": 0.3-0.4 µs and 27-49 ns per
+// direction in d = 2, 3, 6), by the margin NominalNodeSeconds has.
+func CrossingSeconds(d, dirs int) float64 {
+	return 0.5e-6 + float64(float64(dirs)*(50e-9+float64(float64(d)*5e-9)))
 }
 
 // RecordBytes estimates the size of one replicate record of cell c, for bounding the

@@ -57,8 +57,9 @@ func num(x float64) any {
 }
 
 const planNote = "estimates from the cost model: (k e^{gT} - 1)/(k - 1) expected tree nodes per replicate " +
-	"at a nominal %.0f ns per node in d <= 3 (%.0f ns at d = 4, %.0f ns more per further dimension), plus a few " +
-	"microseconds per replicate and per checkpoint; node counts are random and real speed depends on the machine"
+	"at a nominal %.0f ns per node in d <= 3 (%.0f ns at d = 4, %.0f ns more per further dimension), plus, at each " +
+	"checkpoint s, about a microsecond for each of the e^{gs} particles alive then (more with many directions); node " +
+	"counts are random and real speed depends on the machine"
 
 func runPlan(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("plan", "SWEEP.toml [--cores N] [--json] [--force]",

@@ -104,6 +104,16 @@ func TestEstimate(t *testing.T) {
 			t.Fatalf("%s: %v CPU-seconds per replicate, want %v", c.ID, got, want)
 		}
 	}
+	// A checkpoint at s = 7 in a d = 3, T = 8 cell is crossed by e^7 particles on average,
+	// each at 0.5 µs + 16 directions × (50 + 3 × 5) ns = 1.54 µs (engine.CrossingSeconds's
+	// rule): about 1.7 ms, five times the walk's 2(e^8) - 1 nodes at 60 ns.
+	sc := mustParse(t, "seed = 1\n[grid]\ndims = [3]\nhorizons = [8]\nreplicates = 10\n[observe]\ncheckpoints = [7]\n", "cp.toml")
+	cc := sc.Cells()[0].Cell
+	walk := expectedNodes(1, 2, 8)*60e-9 + 5e-6
+	wantCP := walk + 2e-6 + math.Exp(7)*1.54e-6
+	if got := engine.NominalReplicateSeconds(cc); math.Abs(got-wantCP) > 1e-9*wantCP || got < 5*walk {
+		t.Fatalf("with a checkpoint at 7: %v CPU-seconds per replicate, want %v", got, wantCP)
+	}
 	// A horizon of 40 at a million replicates is about 4.7e23 nodes: absurd.
 	big := mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1000000\n", "big.toml")
 	if !big.Estimate().Absurd {
