@@ -138,8 +138,13 @@ func runShow(args []string, stdout, stderr io.Writer) error {
 			return err
 		}
 		mean, se := sk.MeanShift()
-		fmt.Fprintf(stdout, "cell %s: d=%d T=%g, %d replicates, mean R*_T - m_T = %.4f ± %.4f (estimate ± s.e.)\n",
-			id, c.Model.Dim, c.Horizon, sk.N, mean, se)
+		if sk.N == 1 {
+			fmt.Fprintf(stdout, "cell %s: d=%d T=%g, 1 replicate, R*_T - m_T = %.4f (one sample: no standard error)\n",
+				id, c.Model.Dim, c.Horizon, mean)
+		} else {
+			fmt.Fprintf(stdout, "cell %s: d=%d T=%g, %d replicates, mean R*_T - m_T = %.4f ± %.4f (estimate ± s.e.)\n",
+				id, c.Model.Dim, c.Horizon, sk.N, mean, se)
+		}
 		for _, r := range sk.Ranges {
 			fmt.Fprintf(stdout, "    seed %d: replicates [%d, %d)\n", r.Seed, r.From, r.To)
 		}

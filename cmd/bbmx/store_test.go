@@ -39,6 +39,16 @@ func TestStoreCommands(t *testing.T) {
 	if code, _, errs := runCLI(t, "show", filepath.Join(dir, "none.db")); code != 1 || !strings.Contains(errs, "no such file") {
 		t.Fatalf("missing store: %d %s", code, errs)
 	}
+	// A store in a folder not made yet, holding one replicate: show gives no standard
+	// error for a single sample rather than a zero one.
+	one := filepath.Join(dir, "new", "one.db")
+	if code, _, errs := runCLI(t, "sim", "--horizon", "3", "--replicates", "1", "--seed", "4", "--store", one); code != 0 {
+		t.Fatal(errs)
+	}
+	code, out, errs = runCLI(t, "show", one)
+	if code != 0 || !strings.Contains(out, "1 replicate, R*_T - m_T = ") || strings.Contains(out, "±") {
+		t.Fatalf("show of one replicate: %d %s %s", code, out, errs)
+	}
 }
 
 func TestExportCommand(t *testing.T) {
