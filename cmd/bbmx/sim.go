@@ -125,7 +125,7 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 		return usagef("--split-at %v is outside [0, horizon %v)", *splitAt, *horizon)
 	}
 	nodes := m.ExpectedNodes(*horizon) * float64(*reps)
-	cpu := nodes * engine.NodeSeconds(m.Dim)
+	cpu := float64(*reps) * engine.NominalReplicateSeconds(cell) // the walk, and the checkpoints' crossings
 	if nodes > engine.AbsurdNodes && !*force {
 		return usagef("refusing: about %.3g tree nodes, roughly %.0f CPU-hours (estimate); lower --horizon or --replicates, or pass --force", nodes, cpu/3600)
 	}
