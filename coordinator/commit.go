@@ -6,6 +6,7 @@ import (
 	"encoding/binary"
 	"fmt"
 	"math"
+	"math/bits"
 	"sort"
 	"time"
 
@@ -136,12 +137,12 @@ func checkRecord(c engine.Cell, r *engine.Record, rep uint64) error {
 	case len(r.Checks) != len(o.Checkpoints):
 		return fmt.Errorf("has %d checkpoints, want %d", len(r.Checks), len(o.Checkpoints))
 	}
-	var hsum uint64
+	var hsum, carry uint64
 	for _, h := range r.Hist {
-		hsum += h
-	}
-	if hsum > r.Population {
-		return fmt.Errorf("histogram counts %d particles of %d", hsum, r.Population)
+		hsum, carry = bits.Add64(hsum, h, 0)
+		if carry != 0 || hsum > r.Population {
+			return fmt.Errorf("histogram counts more particles than the population %d", r.Population)
+		}
 	}
 	for i, p := range r.Top {
 		if !finite(p.Radius) || p.Radius < 0 || (i > 0 && p.Radius > r.Top[i-1].Radius) {

@@ -10,8 +10,12 @@
 // Invariants:
 //   - What is done is read from the store: a cell's done replicates are its sketch's
 //     ranges for the sweep's seed, and a split replicate's done parts are in the
-//     coordinator/parts bucket. Restarting on the same store plans only what is missing,
-//     and the sketch refuses a range it already holds, so nothing is counted twice.
+//     coordinator/parts bucket (used only where they are exactly a part task of the
+//     current plan: a resumed sweep may cut its replicates differently). Restarting on
+//     the same store plans only what is missing, and the sketch refuses a range it
+//     already holds, so nothing is counted twice.
+//   - A task fails (lease expired, worker error, invalid result) only if it is still in
+//     the state the failure was decided in: never while its result is being committed.
 //   - Range tasks are cut at multiples of the cell's replicates-per-task, so the same
 //     replicates form the same task (same id) before and after a restart.
 //   - A result is accepted once per task id: the first valid result wins, whichever
@@ -98,6 +102,7 @@ type Coordinator struct {
 	commits  chan *commitReq
 	stopOnce sync.Once
 	stopped  chan struct{}
+	sendMu   sync.RWMutex // Submit's send to commits against Close (see Submit)
 	wg       sync.WaitGroup
 }
 
@@ -296,7 +301,9 @@ func mustJSON(v any) []byte { b, _ := json.Marshal(v); return b }
 // Close stops the committer and the lease clock. Results already acknowledged are
 // durable; the store stays open (the caller owns it).
 func (c *Coordinator) Close() {
+	c.sendMu.Lock() // no Submit between its check of stopped and its send (see Submit)
 	c.stopOnce.Do(func() { close(c.stopped) })
+	c.sendMu.Unlock()
 	c.wg.Wait()
 }
 
@@ -441,16 +448,18 @@ func (c *Coordinator) Release(ctx context.Context, req *pb.ReleaseRequest) (*pb.
 		if t == nil || t.state != stateLeased || t.worker != req.WorkerId {
 			continue
 		}
+		// Handed back either way: a heartbeat this worker sent before the release
+		// must not take the task again.
+		t.handedBy = req.WorkerId
 		if req.Error == "" {
 			c.requeueLocked(t)
-			t.handedBy = req.WorkerId
 			continue
 		}
 		failed = append(failed, t)
 	}
 	c.mu.Unlock()
 	for _, t := range failed {
-		c.fail(t, "worker error: "+req.Error)
+		c.fail(t, "worker error: "+req.Error, leasedTo(req.WorkerId))
 	}
 	return &pb.ReleaseReply{}, nil
 }
@@ -463,10 +472,13 @@ func (c *Coordinator) requeueLocked(t *task) {
 }
 
 // fail counts a failed attempt, parks the task after MaxFailures, persists its state,
-// and otherwise re-queues it.
-func (c *Coordinator) fail(t *task, why string) {
+// and otherwise re-queues it; only if still(t) holds when it takes the lock, because
+// the caller decided without it: a worker may have submitted the task's result
+// meanwhile (it is then being committed or done), or it may have been handed back and
+// leased again.
+func (c *Coordinator) fail(t *task, why string, still func(*task) bool) {
 	c.mu.Lock()
-	if t.state == stateDone || t.state == stateParked {
+	if !still(t) {
 		c.mu.Unlock()
 		return
 	}
@@ -496,6 +508,16 @@ func (c *Coordinator) fail(t *task, why string) {
 	}
 }
 
+// leasedTo is fail's condition for a task a worker gave up: still leased to it.
+func leasedTo(worker string) func(*task) bool {
+	return func(t *task) bool { return t.state == stateLeased && t.worker == worker }
+}
+
+// expiredBy is fail's condition for the clock: still leased, the deadline past.
+func expiredBy(now int64) func(*task) bool {
+	return func(t *task) bool { return t.state == stateLeased && t.deadline < now }
+}
+
 func coordBucket(tx *bolt.Tx, name []byte) (*bolt.Bucket, error) {
 	cb, err := tx.CreateBucketIfNotExists(bucketCoord)
 	if err != nil {
@@ -517,17 +539,21 @@ func (c *Coordinator) clock() {
 		}
 		now := time.Now().UnixMilli()
 		var expired []*task
+		var workers []string
 		c.mu.Lock()
 		for _, t := range c.byID {
 			if t.state == stateLeased && t.deadline < now {
 				expired = append(expired, t)
 			}
 		}
-		c.stats.expiries += uint64(len(expired))
-		c.mu.Unlock()
 		sort.Slice(expired, func(i, j int) bool { return expired[i].id < expired[j].id })
 		for _, t := range expired {
-			c.fail(t, fmt.Sprintf("lease expired (worker %s stopped sending heartbeats)", t.worker))
+			workers = append(workers, t.worker)
+		}
+		c.stats.expiries += uint64(len(expired))
+		c.mu.Unlock()
+		for i, t := range expired {
+			c.fail(t, fmt.Sprintf("lease expired (worker %s stopped sending heartbeats)", workers[i]), expiredBy(now))
 		}
 	}
 }
@@ -563,16 +589,24 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 		c.stats.rejected++
 		c.mu.Unlock()
 		c.log.Error("REJECTED a result that fails validation: worker fault", "task", t.id, "worker", req.WorkerId, "error", err)
-		c.fail(t, "invalid result: "+err.Error()) // counts an attempt; a parked task stays parked
+		// counts an attempt; a parked or done task stays so
+		c.fail(t, "invalid result: "+err.Error(), func(t *task) bool { return t.state == statePending || t.state == stateLeased })
 		return nil, status.Errorf(codes.InvalidArgument, "task %s: result rejected: %v", t.id, err)
 	}
 	cr.digest = sum
 	cr.done = make(chan error, 1)
+	// The send is gated by sendMu so that Close cannot slip in between the check and
+	// the send: once stopped is closed no request enters the queue, and every request
+	// that did is committed by the committer's final drain.
+	c.sendMu.RLock()
 	select {
-	case c.commits <- cr:
 	case <-c.stopped:
+		c.sendMu.RUnlock()
 		c.restore(t, prev, cr)
 		return nil, status.Error(codes.Unavailable, "coordinator is shutting down")
+	default:
+		c.commits <- cr
+		c.sendMu.RUnlock()
 	}
 	if err := <-cr.done; err != nil {
 		c.restore(t, prev, cr)
@@ -584,6 +618,9 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 		c.nParked--
 	}
 	t.state, t.digest, t.worker = stateDone, sum, ""
+	if cr.dropParts {
+		delete(t.cell.parts, t.from) // the replicate is committed whole
+	}
 	c.nDone++
 	c.stats.completions++
 	c.stats.computeNS += max(req.ComputeNs, 0)

@@ -145,17 +145,12 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 			if err != nil {
 				return nil, fmt.Errorf("cell %s replicate %d: %w", cs.ID, rep, err)
 			}
+			// Stored parts count only where they are exactly one of this plan's part
+			// tasks: a sweep resumed with another split time or task size cuts the
+			// replicate differently, and a part of the old cut must neither mark a new
+			// task done nor be merged with the new parts. Such parts are left unused (the
+			// replicate's stored parts are deleted when it completes).
 			got := storedParts[rep]
-			if len(got) > 0 {
-				c.parts[rep] = map[uint64]*engine.Part{}
-				for rf, enc := range got {
-					p, err := engine.DecodePart(cs.Cell, enc)
-					if err != nil {
-						return nil, fmt.Errorf("cell %s replicate %d: stored part: %w", cs.ID, rep, err)
-					}
-					c.parts[rep][rf] = p
-				}
-			}
 			parts := uint64(sz.Parts)
 			for i := uint64(0); i < parts; i++ {
 				a, b := roots*i/parts, roots*(i+1)/parts
@@ -164,8 +159,18 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 				}
 				t := &task{id: fmt.Sprintf("%s/r%d/s%g/p%d-%d", cs.ID, rep, sz.SplitAt, a, b), cell: c,
 					from: rep, to: rep + 1, split: true, splitAt: sz.SplitAt, roots: roots, rootFrom: a, rootTo: b, unit: unitOf(cs.ID, rep)}
-				if _, ok := got[a]; ok {
-					t.state = stateDone
+				if enc, ok := got[a]; ok {
+					p, err := engine.DecodePart(cs.Cell, enc)
+					if err != nil {
+						return nil, fmt.Errorf("cell %s replicate %d: stored part: %w", cs.ID, rep, err)
+					}
+					if p.Replicate == rep && p.SplitAt == sz.SplitAt && p.Roots == roots && p.From == a && p.To == b {
+						if c.parts[rep] == nil {
+							c.parts[rep] = map[uint64]*engine.Part{}
+						}
+						c.parts[rep][a] = p
+						t.state = stateDone
+					}
 				}
 				c.tasks = append(c.tasks, t)
 			}

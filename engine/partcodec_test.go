@@ -97,3 +97,42 @@ func TestDecodePartRejectsDamage(t *testing.T) {
 		t.Fatal("no single-byte corruption was detected")
 	}
 }
+
+// Parts whose counts would wrap around 2^64 when merged (possible only from a corrupt
+// or forged part) are refused, and the receiver is left as it was. Deterministic.
+func TestMergeRefusesWrappingCounts(t *testing.T) {
+	c := Cell{Model: Model{Dim: 2, Sigma: 1, Beta: 1, Children: 2}, Horizon: 4,
+		Observe: Observe{Checkpoints: []float64{1, 3}}}.WithDefaults()
+	roots, err := CountRoots(c, 5, 0, 3)
+	if err != nil || roots < 2 {
+		t.Fatalf("%d roots (%v)", roots, err)
+	}
+	for _, field := range []string{"population", "histogram", "checkpoint"} {
+		p, err := SimulatePart(c, 5, 0, 3, 0, 1)
+		if err != nil {
+			t.Fatal(err)
+		}
+		q, err := SimulatePart(c, 5, 0, 3, 1, roots)
+		if err != nil {
+			t.Fatal(err)
+		}
+		switch field {
+		case "population":
+			q.pop = -p.pop
+		case "histogram":
+			i := len(p.hist) - 1
+			p.hist[i]++
+			q.hist[i] = -p.hist[i]
+		case "checkpoint":
+			p.checks[0].n++
+			q.checks[0].n = -p.checks[0].n
+		}
+		before := p.Clone()
+		if err := p.Merge(q); err == nil {
+			t.Fatalf("%s: merging wrapping counts succeeded", field)
+		}
+		if p.pop != before.pop || p.To != before.To {
+			t.Fatalf("%s: the refused merge changed the receiver", field)
+		}
+	}
+}

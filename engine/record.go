@@ -77,6 +77,18 @@ func (p *Part) Merge(q *Part) error {
 	case len(p.hist) != len(q.hist) || len(p.checks) != len(q.checks) || p.top.k != q.top.k:
 		return fmt.Errorf("replicate %d: parts were recorded with different settings", p.Replicate)
 	}
+	// Counts that wrap around can only come from a corrupt part (a simulation cannot
+	// reach 2^64 particles); refuse them before changing p.
+	wraps := p.pop+q.pop < p.pop
+	for i := range p.hist {
+		wraps = wraps || p.hist[i]+q.hist[i] < p.hist[i]
+	}
+	for i := range p.checks {
+		wraps = wraps || p.checks[i].n+q.checks[i].n < p.checks[i].n
+	}
+	if wraps {
+		return fmt.Errorf("replicate %d: the parts' particle counts overflow", p.Replicate)
+	}
 	p.To = q.To
 	p.pop += q.pop
 	for i := range p.hist {
