@@ -223,10 +223,12 @@ func (c *Coordinator) plan() error {
 		return fmt.Errorf("%s: %w", c.store.Path(), err)
 	}
 	have := map[string]bool{}
-	if ids, err := c.store.Cells(); err == nil {
-		for _, id := range ids {
-			have[id] = true
-		}
+	ids, err := c.store.Cells()
+	if err != nil {
+		return fmt.Errorf("%s: %w", c.store.Path(), err) // else every cell would be planned anew
+	}
+	for _, id := range ids {
+		have[id] = true
 	}
 	for _, cs := range c.sw.Cells() {
 		var ranges []results.Range
@@ -648,7 +650,7 @@ func (c *Coordinator) restore(t *task, prev taskState, cr *commitReq) {
 // finished before a restart. Its digest, if kept, is compared.
 func (c *Coordinator) lateSubmit(req *pb.SubmitRequest, sum [32]byte) (*pb.SubmitReply, error) {
 	var stored []byte
-	c.store.View(func(tx *bolt.Tx) error {
+	err := c.store.View(func(tx *bolt.Tx) error {
 		if cb := tx.Bucket(bucketCoord); cb != nil {
 			if db := cb.Bucket(keyDone); db != nil {
 				stored = append([]byte(nil), db.Get([]byte(req.TaskId))...)
@@ -656,6 +658,9 @@ func (c *Coordinator) lateSubmit(req *pb.SubmitRequest, sum [32]byte) (*pb.Submi
 		}
 		return nil
 	})
+	if err != nil {
+		return nil, status.Errorf(codes.Internal, "task %s: reading the store: %v", req.TaskId, err)
+	}
 	if len(stored) != 32 {
 		return nil, status.Errorf(codes.NotFound, "task %s is not part of this sweep", req.TaskId)
 	}
