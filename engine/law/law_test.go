@@ -17,11 +17,18 @@ func TestPureDiffusionIsChiSquare(t *testing.T) {
 	for _, c := range []struct {
 		d        int
 		sigma, T float64
-	}{{1, 1, 1}, {2, 1, 10}, {3, 2, 3}, {4, 0.5, 20}, {7, 1, 2}} {
+	}{{1, 1, 1}, {2, 1, 10}, {3, 2, 3}, {4, 0.5, 20}, {7, 1, 2},
+		// Short horizons and radii far below the coarse grid's step: the implicit steps
+		// then reach far beyond the front, which the work-saving margin must follow
+		// (with a fixed margin these gave P near 0, or ran to the finest grid and
+		// failed). Here the Richardson estimate can understate the error (6.6e-9
+		// against 8.6e-10 at d = 1, R = 0.002), so these are held to the tolerance
+		// asked for rather than to the estimate.
+		{1, 1, 0.001}, {2, 1, 0.01}} {
 		m := engine.Model{Dim: c.d, Sigma: c.sigma, Beta: 1.5, Children: 2}
 		chi := distuv.ChiSquared{K: float64(c.d)}
 		var radii []float64
-		for _, q := range []float64{0.05, 0.3, 0.6, 0.95} {
+		for _, q := range []float64{0.02, 0.05, 0.3, 0.6, 0.95} {
 			radii = append(radii, c.sigma*math.Sqrt(c.T*chi.Quantile(q)))
 		}
 		vals, err := CDF(m, c.T, radii, Options{Tolerance: 1e-7, noReaction: true})
@@ -30,7 +37,11 @@ func TestPureDiffusionIsChiSquare(t *testing.T) {
 		}
 		for _, v := range vals {
 			exact := chi.CDF(v.Radius * v.Radius / (c.sigma * c.sigma * c.T))
-			if d := math.Abs(v.P - exact); d > v.Err || v.Err > 1e-7 {
+			bound := v.Err
+			if c.T < 0.1 {
+				bound = 1e-7
+			}
+			if d := math.Abs(v.P - exact); d > bound || v.Err > 1e-7 {
 				t.Errorf("d=%d sigma=%g T=%g R=%.4f: P=%.10f exact=%.10f (diff %.2e, err %.2e)",
 					c.d, c.sigma, c.T, v.Radius, v.P, exact, d, v.Err)
 			}

@@ -39,8 +39,17 @@ const snap = 1e-14
 // a test can compare with the untrimmed solve).
 var trim = true
 
-// trailMargin is the number of nodes kept in the step beyond the last node with u < 1.
+// trailMargin is the number of nodes kept in the step beyond the last node with u < 1,
+// plus the reach of the implicit step: (I + aL)^-1 spreads a change over a distance of
+// about sqrt(a) per factor e (L is minus the discrete Laplacian), so within 33 sqrt(a)
+// it falls below 1e-14 (derived: e^-33 = 4.7e-15). On a coarse grid that is a few nodes,
+// but with a large step against a fine grid (short horizons, small radii) it is many:
+// a fixed margin then held w at 0 like a wall and gave wrong probabilities with small
+// error estimates.
 const trailMargin = 24
+
+// trailReach is 33 (see trailMargin).
+const trailReach = 33
 
 // stats records what a solve saw; the tests read it.
 type stats struct {
@@ -179,16 +188,16 @@ func (g *grid) solve() ([]float64, stats) {
 			if i < last {
 				x += f.cpr[i] * next
 			}
-			if x < tiny { // keep out of the slow subnormal range (see tiny)
-				x = 0
-			}
-			next = x
-			if x < st.minU {
+			if x < st.minU { // before any clamping: the tests read these
 				st.minU = x
 			}
 			if x > st.maxU {
 				st.maxU = x
 			}
+			if x < tiny { // keep out of the slow subnormal range (see tiny)
+				x = 0
+			}
+			next = x
 			if react != nil {
 				u[i] = react.apply(x)
 			} else {
@@ -203,7 +212,8 @@ func (g *grid) solve() ([]float64, stats) {
 		}
 		st.nodeSteps += float64(last - first + 1)
 		if trim {
-			hi = min(n-1, max(top, first)+trailMargin)
+			reach := math.Ceil(trailReach * math.Sqrt(a) / g.h)
+			hi = min(n-1, max(top, first)+trailMargin+int(min(reach, float64(n))))
 		}
 	}
 	reactOver := func(s float64) *reaction {
