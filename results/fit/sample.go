@@ -101,29 +101,39 @@ func SampleMoments(x []float64) (Moments, error) {
 	}
 	n := float64(len(x))
 	xb := mean(x)
+	// The deviations are taken in units of the largest one, s, so that their fourth
+	// powers neither overflow nor underflow whatever the data's scale; the moments in
+	// these units are m2/s², m3/s³, m4/s⁴, and skewness is free of the unit.
+	var s float64
+	for _, v := range x {
+		s = math.Max(s, math.Abs(v-xb))
+	}
+	if s == 0 {
+		return Moments{}, fmt.Errorf("fit: moment sample is constant (all %v)", x[0])
+	}
+	if math.IsInf(s, 0) {
+		return Moments{}, fmt.Errorf("fit: moment sample spans more than the largest float")
+	}
 	var m2, m3, m4 float64
 	for _, v := range x {
-		d := v - xb
+		d := (v - xb) / s
 		m2 += d * d
 		m3 += d * d * d
 		m4 += d * d * d * d
 	}
 	m2, m3, m4 = m2/n, m3/n, m4/n
-	if m2 == 0 {
-		return Moments{}, fmt.Errorf("fit: moment sample is constant (all %v)", x[0])
-	}
-	sd := math.Sqrt(m2 * n / (n - 1))
+	sd := s * math.Sqrt(m2*n/(n-1))
 	g1 := m3 / math.Pow(m2, 1.5)
 	var vs float64
 	for _, v := range x {
-		d := v - xb
+		d := (v - xb) / s
 		inf := math.Pow(m2, -1.5)*(d*d*d-m3-3*m2*d) - 1.5*m3*math.Pow(m2, -2.5)*(d*d-m2)
 		vs += inf * inf
 	}
 	return Moments{
 		N:    len(x),
 		Mean: xb, SEMean: sd / math.Sqrt(n),
-		StdDev: sd, SEStdDev: math.Sqrt(math.Max(0, m4-m2*m2) / (4 * m2 * n)),
+		StdDev: sd, SEStdDev: s * math.Sqrt(math.Max(0, m4-m2*m2)/(4*m2*n)),
 		Skewness: g1, SESkew: math.Sqrt(vs/n) / math.Sqrt(n),
 	}, nil
 }

@@ -82,4 +82,27 @@ func TestQuantileRanks(t *testing.T) {
 	wantErr(t, err, "quantile level 1.5")
 	_, err = SampleMoments([]float64{2, 2, 2})
 	wantErr(t, err, "constant")
+	// Huge and tiny scales: fourth powers of the raw deviations overflow (2e77) or
+	// underflow (1e-160); the moments are taken in units of the largest deviation, so
+	// every figure stays finite and the skewness is that of {0, 1, 3} rescaled: the
+	// same for both (derived: scale-free).
+	big, err := SampleMoments([]float64{2e77, -2e77, 5e76})
+	if err != nil {
+		t.Fatal(err)
+	}
+	small, err := SampleMoments([]float64{1e-160, 3e-160, 7e-160})
+	if err != nil {
+		t.Fatal(err)
+	}
+	ref, _ := SampleMoments([]float64{2, -2, 0.5})
+	for _, m := range []Moments{big, small} {
+		for _, v := range []float64{m.StdDev, m.SEStdDev, m.Skewness, m.SESkew} {
+			if math.IsNaN(v) || math.IsInf(v, 0) {
+				t.Fatalf("non-finite moment in %+v", m)
+			}
+		}
+	}
+	if math.Abs(big.Skewness-ref.Skewness) > 1e-12 {
+		t.Errorf("skewness at scale 1e77: %v, at scale 1: %v", big.Skewness, ref.Skewness)
+	}
 }
