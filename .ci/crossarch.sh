@@ -1,6 +1,6 @@
 #!/usr/bin/env bash
 # Records must be the same bits on every processor and build (DEVELOPERS.md, invariants).
-# This runs the tests that pin them (the pinned digest, node3 against node, threads and
+# This runs the tests that pin them (the pinned digest, the batched walk against node, threads and
 # splits bit for bit, the wedge squeeze, the portable math) on builds that differ where
 # it matters:
 #   - arm64, under qemu user-mode emulation (qemu-user-static): there Go fuses

@@ -61,7 +61,7 @@ func BenchmarkRawVariates(b *testing.B) {
 }
 
 // rawEngine draws, per iteration, one node's exponential and d normals as the walk
-// does (the fast paths inline, node3's words for d <= 3), from a key derived from a
+// does (the fast paths inline, the words of normals 0-2 as wave3 takes them), from a key derived from a
 // parent's.
 func rawEngine(b *testing.B, d int) {
 	var r nodeRand
@@ -89,9 +89,10 @@ func rawEngine(b *testing.B, d int) {
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
 }
 
-// skeleton is the walk with everything but the keys, the lifetimes and the recursion
-// taken out: the part of a node's cost that is a chain of dependent steps (key, then
-// lifetime, then the leaf-or-branch test) and cannot overlap with the next node.
+// skeleton is a depth-first walk with everything but the keys, the lifetimes and the
+// recursion taken out: the part of a node's cost that is a chain of dependent steps
+// (key, then lifetime, then the leaf-or-branch test) and, depth first, cannot overlap
+// with the next node. The batched walk (wave3) is not bound by it.
 type skeleton struct {
 	horizon float64
 	nodes   uint64
@@ -113,7 +114,7 @@ func (s *skeleton) node(k key, birth float64) {
 }
 
 // BenchmarkWalkSkeleton reports the stripped walk's ns per node (binary, T = 10): the
-// floor under BenchmarkNode that no change to the bookkeeping can go below.
+// floor of a depth-first walk, whatever its bookkeeping.
 func BenchmarkWalkSkeleton(b *testing.B) {
 	s := &skeleton{horizon: 10}
 	for i := 0; i < b.N; i++ {

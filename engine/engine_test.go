@@ -472,7 +472,7 @@ func TestDigestStableAndSeeded(t *testing.T) {
 }
 
 // pinnedDigestHighDim pins the general walk (node) above d = 3, which the d = 2 digest
-// and TestNode3MatchesNode do not reach: normals from the fourth on, cut at checkpoints
+// and TestWaveMatchesNode do not reach: normals from the fourth on, cut at checkpoints
 // and not (random-stream 3, record format 1).
 const pinnedDigestHighDim = "6a9966e7865fcf7f4f6e0724264ffb65e0525c07162767196608813239705fdf"
 

@@ -34,7 +34,7 @@ type walker struct {
 	nNorm  uint64
 	rng    nodeRand
 	levels [][]float64 // position buffers, one per tree depth
-	// general makes subtree use node in every dimension (for tests of node3)
+	// general makes subtree use node in every dimension (for tests of wave3)
 	general bool
 	part    *Part
 	// split bookkeeping
@@ -58,6 +58,10 @@ type walker struct {
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
 	// checkpoint to cut its path at
 	lastCheck float64
+	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
+	// walks
+	stack   []brood
+	leafBuf []vec
 }
 
 func newWalker(c Cell) *walker {
@@ -229,17 +233,18 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 }
 
 // subtree walks the full subtree of the node with key k, born at birth at position pos
-// (w.level(depth)): with node3 in up to three dimensions, else with node.
+// (w.level(depth)): in batches with wave3 in up to three dimensions, else depth first
+// with node.
 func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 	if w.d > 3 || w.general {
 		w.node(k, birth, pos, depth)
 		return
 	}
-	w.node3(k, birth, vecOf(pos))
+	w.wave3(k, birth, vecOf(pos))
 }
 
-// vec is a position in at most three dimensions, the unused coordinates 0. node3 carries
-// positions in these rather than in slices: the compiler passes them in registers, and
+// vec is a position in at most three dimensions, the unused coordinates 0. wave3 carries
+// positions in these rather than in slices: the compiler keeps them in registers, and
 // the code has no bounds checks and no loops over the coordinates.
 type vec struct{ x, y, z float64 }
 
@@ -259,74 +264,9 @@ func vecOf(s []float64) vec {
 // coords is v's first d coordinates.
 func (v vec) coords(d int) []float64 { return []float64{v.x, v.y, v.z}[:d] }
 
-// node3 is node for d <= 3 (the common case), written out with positions in vecs: 20-30 %
-// fewer instructions per node. It must give the same records as node, draw for draw and rounding for
-// rounding; TestNode3MatchesNode compares the two on many cells. The rare cases (a
-// checkpoint to cut at, a top-K candidate) go through node's helpers.
-func (w *walker) node3(k key, birth float64, p vec) {
-	last, d := w.k-1, w.d
-	for {
-		w.rng.seed(k) // start's body written out (start does not inline)
-		e, ok := zigExp(k.hi)
-		if !ok {
-			e = w.rng.expSlow(k.hi)
-		}
-		death := birth + w.perRate(e)
-		until := min(death, w.horizon)
-		q := p
-		if birth > w.lastCheck {
-			if dt := until - birth; dt > 0 {
-				sd := w.sigma * math.Sqrt(dt)
-				z, ok := zigNormal(k.lo)
-				if !ok {
-					z = w.rng.normSlow(k.lo)
-				}
-				q.x += float64(sd * z)
-				if d > 1 {
-					u := spareWord(k)
-					z, ok := zigNormal(u)
-					if !ok {
-						z = w.rng.normSlow(u)
-					}
-					q.y += float64(sd * z)
-				}
-				if d > 2 {
-					u := mix64(k.lo + normal2Gamma)
-					z, ok := zigNormal(u)
-					if !ok {
-						z = w.rng.normSlow(u)
-					}
-					q.z += float64(sd * z)
-				}
-			}
-		} else {
-			q = w.advance3(k, birth, until, p)
-		}
-		if death > w.horizon {
-			// leaf, written out; the sum of squares in the order leaf adds them (the
-			// unused coordinates add +0, which changes nothing)
-			w.tally()
-			r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
-			if r >= w.topFloor {
-				w.offer(r, q.coords(d)) // offer copies what it keeps
-			}
-			w.count(r)
-			return
-		}
-		ka, kb := k.mixes()
-		if last == 1 { // binary branching: no loop
-			w.node3(childOf(ka, kb, 0), death, q)
-		} else {
-			for i := 0; i < last; i++ {
-				w.node3(childOf(ka, kb, i), death, q)
-			}
-		}
-		k, birth, p = childOf(ka, kb, last), death, q
-	}
-}
-
-// advance3 is advance for node3: the position at time until of the node with key k,
-// born at birth at p, cut at the checkpoints in between.
+// advance3 is advance for wave3: the position at time until of the node with key k,
+// born at birth at p, cut at the checkpoints in between. w.rng must be the node's
+// generator as it stands after the node's lifetime's draw.
 func (w *walker) advance3(k key, birth, until float64, p vec) vec {
 	var buf [6]float64
 	pos, end := buf[:w.d], buf[3:3+w.d]

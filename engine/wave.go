@@ -1,0 +1,153 @@
+package engine
+
+import "math"
+
+// waveBatch is how many broods wave3 takes off its stack at a time.
+const waveBatch = 128
+
+// brood is the children of one branching node, still to be walked: the parent's mixes
+// (child i's key is childOf(a, b, i)), the children's birth time and birth position.
+type brood struct {
+	a, b  uint64
+	birth float64
+	p     vec
+}
+
+// wave3 walks the full subtree of the node with key k, born at birth at p (d <= 3). It
+// takes up to waveBatch broods at a time off a stack, draws each child's lifetime and
+// increment, and pushes the child's own brood or keeps it as a leaf without a branch,
+// then records the batch's leaves. It gives the same part as node, draw for draw and
+// rounding for rounding (TestWaveMatchesNode).
+//
+// Why batches: in a depth-first walk each node's key, lifetime and leaf-or-branch test
+// wait on the last node's, and that test goes either way near the horizon, so the
+// processor can neither overlap nodes nor predict most leaf tests. A batch's nodes are
+// independent of one another, so their draws overlap as in a plain loop of draws, and
+// the only unpredictable outcome, leaf or branch, moves two counters instead of
+// steering the code. The part does not depend on the order nodes are visited in: the
+// top-K set breaks ties by position, the histogram and population are counts, and
+// checkpoint sums are exact.
+//
+// Memory stays O(depth): a batch replaces at most waveBatch broods by at most
+// waveBatch*k, so the stack grows by at most waveBatch*(k-1) broods per tree level.
+func (w *walker) wave3(k key, birth float64, p vec) {
+	// The root is no one's child: walk it alone.
+	death := birth + w.start(k)
+	q := w.advance3(k, birth, min(death, w.horizon), p)
+	if death > w.horizon {
+		w.leaves3([]vec{q})
+		return
+	}
+	a, b := k.mixes()
+	st := append(w.stack[:0], brood{a, b, death, q})
+	var batch [waveBatch]brood
+	d, kids := w.d, w.k
+	if len(w.leafBuf) < kids*waveBatch {
+		w.leafBuf = make([]vec, kids*waveBatch)
+	}
+	leaves := w.leafBuf
+	sigma, lastCheck := w.sigma, w.lastCheck
+	for len(st) > 0 {
+		n := min(len(st), waveBatch)
+		base := len(st) - n
+		copy(batch[:], st[base:])
+		if need := base + kids*n; need > cap(st) {
+			st = append(st[:cap(st)], make([]brood, need-cap(st))...)
+		}
+		out := st[base : base+kids*n]
+		horizon := w.horizon // poll may move it between batches
+		sp, lp := 0, 0
+		// One loop over the batch's nodes, not a loop per brood: a short inner loop's
+		// exit is a branch the processor may mispredict once per brood.
+		for j := range kids * n {
+			bi, c := j>>1, j&1
+			if kids != 2 {
+				bi, c = j/kids, j%kids
+			}
+			br := &batch[bi]
+			k := childOf(br.a, br.b, c)
+			var r *nodeRand // see rejections
+			e, ok := zigExp(k.hi)
+			if !ok {
+				e = w.rejections(k, &r).expSlow(k.hi)
+			}
+			death := br.birth + w.perRate(e)
+			until := min(death, horizon)
+			q := br.p
+			if br.birth > lastCheck {
+				if dt := until - br.birth; dt > 0 {
+					sd := sigma * math.Sqrt(dt)
+					z, ok := zigNormal(k.lo)
+					if !ok {
+						z = w.rejections(k, &r).normSlow(k.lo)
+					}
+					q.x += float64(sd * z)
+					if d > 1 {
+						u := spareWord(k)
+						z, ok := zigNormal(u)
+						if !ok {
+							z = w.rejections(k, &r).normSlow(u)
+						}
+						q.y += float64(sd * z)
+					}
+					if d > 2 {
+						u := mix64(k.lo + normal2Gamma)
+						z, ok := zigNormal(u)
+						if !ok {
+							z = w.rejections(k, &r).normSlow(u)
+						}
+						q.z += float64(sd * z)
+					}
+				}
+			} else {
+				w.rejections(k, &r)
+				q = w.advance3(k, br.birth, until, br.p)
+			}
+			// Both outcomes are written, field by field (a composite literal is
+			// copied in 16-byte moves that stall on the 8-byte stores just made);
+			// the counts say which one stands.
+			leaf := int(math.Float64bits(horizon-death) >> 63) // death > horizon
+			l := &leaves[lp]
+			l.x, l.y, l.z = q.x, q.y, q.z
+			lp += leaf
+			o := &out[sp]
+			o.a, o.b = k.mixes()
+			o.birth = death
+			o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
+			sp += 1 - leaf
+		}
+		st = st[:base+sp]
+		w.leaves3(leaves[:lp])
+	}
+	w.stack = st[:0]
+}
+
+// rejections returns the generator for the rejection steps of the node with key k:
+// *r, or if that is nil w.rng seeded with k, which *r is then set to. wave3 seeds a
+// node's generator only when a draw needs it (2 to 5 nodes in 100): a node's later
+// rejection steps must go on where its earlier ones left the generator.
+func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
+	if *r == nil {
+		w.rng.seed(k)
+		*r = &w.rng
+	}
+	return *r
+}
+
+// leaves3 records leaves of wave3 (as leaf does one of node's), and polls the done
+// channel when the population passes a multiple of pollLeaves.
+func (w *walker) leaves3(ls []vec) {
+	before := w.part.pop
+	w.part.pop += uint64(len(ls))
+	for i := range ls {
+		q := &ls[i]
+		r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
+		if r >= w.topFloor {
+			w.offer(r, q.coords(w.d))
+		}
+		w.count(r)
+	}
+	if before/pollLeaves != w.part.pop/pollLeaves {
+		w.poll()
+	}
+}
