@@ -24,13 +24,16 @@ type commitReq struct {
 	part       []byte              // part encoding to keep until the replicate is complete
 	dropParts  bool                // the replicate is complete: delete its stored parts
 	replicates uint64              // replicates this commit completes
+	round      uint32              // for a part: its replicate's drops when it was validated (cellState.dropped)
 	digest     [32]byte
 	done       chan error
 }
 
-// validate checks a submission against its task and turns it into a commit request.
-// Nothing is written; a part is added to the in-memory assembly of its replicate.
-func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, error) {
+// validate checks a submission against its task (in state committing, prev before)
+// and turns it into a commit request. Nothing is written; a part is added to the
+// in-memory assembly of its replicate. If it is the last part and the parts do not
+// assemble, they are all dropped (dropUnassembledLocked) and an *assemblyError returned.
+func (c *Coordinator) validate(t *task, prev taskState, req *pb.SubmitRequest) (*commitReq, error) {
 	cell := t.cell.spec.Cell
 	cr := &commitReq{task: t}
 	if !t.split {
@@ -78,6 +81,7 @@ func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, erro
 	}
 	c.mu.Lock()
 	defer c.mu.Unlock()
+	cr.round = t.cell.dropped[t.from]
 	have := t.cell.parts[t.from]
 	if have == nil {
 		have = map[uint64]*engine.Part{}
@@ -96,21 +100,9 @@ func (c *Coordinator) validate(t *task, req *pb.SubmitRequest) (*commitReq, erro
 		cr.part = req.Part
 		return cr, nil
 	}
-	var whole *engine.Part
-	for _, k := range sortedKeys(have) {
-		q := have[k].Clone() // Merge changes its receiver; the kept parts stay as received
-		if whole == nil {
-			whole = q
-		} else if err := whole.Merge(q); err != nil {
-			return nil, err
-		}
-	}
-	rec, err := whole.Record(cell)
+	rec, err := assemble(cell, have, t.from)
 	if err != nil {
-		return nil, err
-	}
-	if err := checkRecord(cell, &rec, t.from); err != nil {
-		return nil, err
+		return nil, c.dropUnassembledLocked(t, prev, err)
 	}
 	cr.part = req.Part
 	cr.dropParts = true

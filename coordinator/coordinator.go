@@ -21,6 +21,13 @@
 //   - A result is accepted once per task id: the first valid result wins, whichever
 //     lease it came from (results are deterministic); a later one is compared with the
 //     stored digest and dropped, and a mismatch is logged loudly as a worker fault.
+//   - A split replicate's parts are assembled (merged, made a record, checked) only when
+//     the last one arrives. If they do not assemble, no part can be blamed: every part
+//     of the replicate is dropped, from memory and from the store, and its part tasks
+//     are queued again without counting a failed attempt; a part whose commit is in
+//     flight at that moment is dropped and queued again when its commit returns. After
+//     MaxFailures such drops of one replicate (counted across restarts) its part tasks
+//     are parked, so a fault that recurs cannot loop forever.
 //   - A reply to Submit is sent only after the result is durable.
 //   - A heartbeat naming a pending task adopts it for its worker (the worker kept
 //     computing across a coordinator restart or a late heartbeat), unless that worker
@@ -34,6 +41,7 @@ import (
 	"encoding/binary"
 	"encoding/hex"
 	"encoding/json"
+	"errors"
 	"fmt"
 	"log/slog"
 	"sort"
@@ -63,12 +71,15 @@ type taskRecord struct {
 	Failures uint32 `json:"failures"`
 	Parked   bool   `json:"parked"`
 	Error    string `json:"error,omitempty"`
+	// AssemblyFailures: for a part task, how many times its replicate's parts failed
+	// to assemble and were dropped (the largest over the replicate's tasks counts).
+	AssemblyFailures uint32 `json:"assembly_failures,omitempty"`
 }
 
 // Options tune a coordinator; zero values take the defaults.
 type Options struct {
 	Lease       time.Duration // lease length (default 2m); heartbeats come every Lease/4
-	MaxFailures uint32        // failed attempts before a task is parked (default 3)
+	MaxFailures uint32        // failed attempts before a task is parked (default 3); also the assembly failures before a split replicate's parts are parked
 	Shard       int           // with Shards > 1, plan only the units whose index % Shards == Shard
 	Shards      int
 	Log         *slog.Logger
@@ -108,6 +119,7 @@ type Coordinator struct {
 
 type counters struct {
 	completions, expiries, duplicates, rejected uint64
+	assemblyFailures                            uint64 // split replicates whose parts did not assemble
 	computeNS                                   int64
 }
 
@@ -264,6 +276,9 @@ func (c *Coordinator) plan() error {
 			}
 			kept = append(kept, t)
 			c.byID[t.id] = t
+			if r, ok := records[t.id]; ok && t.split {
+				cell.dropped[t.from] = max(cell.dropped[t.from], r.AssemblyFailures)
+			}
 			if r, ok := records[t.id]; ok && t.state != stateDone {
 				t.failures, t.lastErr = r.Failures, r.Error
 				if r.Parked {
@@ -486,7 +501,7 @@ func (c *Coordinator) fail(t *task, why string, still func(*task) bool) {
 	}
 	t.failures++
 	t.lastErr = why
-	rec := taskRecord{Failures: t.failures, Error: why}
+	rec := c.recordLocked(t)
 	if t.failures >= c.opt.MaxFailures {
 		rec.Parked = true
 		t.state, t.worker = stateParked, ""
@@ -508,6 +523,15 @@ func (c *Coordinator) fail(t *task, why string, still func(*task) bool) {
 	if err != nil {
 		c.log.Error("could not persist task state", "task", t.id, "error", err)
 	}
+}
+
+// recordLocked is the persisted state of t as it stands (parked is set by the caller).
+func (c *Coordinator) recordLocked(t *task) taskRecord {
+	rec := taskRecord{Failures: t.failures, Error: t.lastErr}
+	if t.split {
+		rec.AssemblyFailures = t.cell.dropped[t.from]
+	}
+	return rec
 }
 
 // leasedTo is fail's condition for a task a worker gave up: still leased to it.
@@ -584,7 +608,13 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 	t.state = stateCommitting
 	c.mu.Unlock()
 
-	cr, err := c.validate(t, req)
+	cr, err := c.validate(t, prev, req)
+	var notAssembled *assemblyError
+	if errors.As(err, &notAssembled) {
+		// Not this worker's fault as far as anyone can tell: validate has dropped the
+		// replicate's parts and queued its tasks again (or parked them).
+		return nil, status.Errorf(codes.FailedPrecondition, "task %s: %v", t.id, err)
+	}
 	if err != nil {
 		c.mu.Lock()
 		t.state = prev
@@ -616,6 +646,11 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 		return nil, status.Errorf(codes.Internal, "task %s: could not commit: %v", t.id, err)
 	}
 	c.mu.Lock()
+	if cr.part != nil && !cr.dropParts && cr.round != t.cell.dropped[t.from] {
+		err := c.dropStalePartLocked(t, prev)
+		c.mu.Unlock()
+		return nil, status.Errorf(codes.FailedPrecondition, "task %s: %v", t.id, err)
+	}
 	if prev == stateParked {
 		c.nParked--
 	}

@@ -34,7 +34,7 @@ func FuzzValidateResult(f *testing.F) {
 	f.Add(good.Records[0][:10], []byte{})
 	f.Fuzz(func(t *testing.T, a, b []byte) {
 		req := &pb.SubmitRequest{TaskId: task.id, Records: [][]byte{a, b}}
-		cr, err := co.validate(task, req)
+		cr, err := co.validate(task, statePending, req)
 		if err != nil {
 			return
 		}

@@ -5,8 +5,9 @@ import (
 )
 
 // Collector exports the coordinator's state as Prometheus metrics: tasks by state,
-// completions, lease expiries, duplicates and rejected results. It reads the state at
-// scrape time, so nothing on the hot path pays for it.
+// completions, lease expiries, duplicates, rejected results and split replicates whose
+// parts did not assemble. It reads the state at scrape time, so nothing on the hot path
+// pays for it.
 func (c *Coordinator) Collector() prometheus.Collector { return collector{c} }
 
 type collector struct{ c *Coordinator }
@@ -17,12 +18,13 @@ var (
 	descExpiries    = prometheus.NewDesc("bbmx_lease_expiries_total", "Leases that expired without a result.", nil, nil)
 	descDuplicates  = prometheus.NewDesc("bbmx_duplicate_results_total", "Results for tasks already done (compared and dropped).", nil, nil)
 	descRejected    = prometheus.NewDesc("bbmx_rejected_results_total", "Results that failed validation.", nil, nil)
+	descAssembly    = prometheus.NewDesc("bbmx_replicate_assembly_failures_total", "Split replicates whose parts did not assemble; every part was dropped and queued again (parked after MaxFailures).", nil, nil)
 	descCompute     = prometheus.NewDesc("bbmx_compute_seconds_total", "Simulation time reported by workers for accepted results.", nil, nil)
 	descWorkers     = prometheus.NewDesc("bbmx_workers", "Workers seen within two lease lengths.", nil, nil)
 )
 
 func (m collector) Describe(ch chan<- *prometheus.Desc) {
-	for _, d := range []*prometheus.Desc{descTasks, descCompletions, descExpiries, descDuplicates, descRejected, descCompute, descWorkers} {
+	for _, d := range []*prometheus.Desc{descTasks, descCompletions, descExpiries, descDuplicates, descRejected, descAssembly, descCompute, descWorkers} {
 		ch <- d
 	}
 }
@@ -46,6 +48,7 @@ func (m collector) Collect(ch chan<- prometheus.Metric) {
 	ch <- prometheus.MustNewConstMetric(descExpiries, prometheus.CounterValue, float64(s.expiries))
 	ch <- prometheus.MustNewConstMetric(descDuplicates, prometheus.CounterValue, float64(s.duplicates))
 	ch <- prometheus.MustNewConstMetric(descRejected, prometheus.CounterValue, float64(s.rejected))
+	ch <- prometheus.MustNewConstMetric(descAssembly, prometheus.CounterValue, float64(s.assemblyFailures))
 	ch <- prometheus.MustNewConstMetric(descCompute, prometheus.CounterValue, float64(s.computeNS)/1e9)
 	ch <- prometheus.MustNewConstMetric(descWorkers, prometheus.GaugeValue, float64(st.Workers))
 }

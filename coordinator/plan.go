@@ -57,6 +57,10 @@ type cellState struct {
 	// parts holds, per split replicate, the parts received so far (committed or being
 	// committed), keyed by rootFrom.
 	parts map[uint64]map[uint64]*engine.Part
+	// dropped counts, per split replicate, the times its parts failed to assemble and
+	// were all dropped (kept in the task records across restarts). A part validated
+	// before the latest drop is stale: it is dropped too when its commit returns.
+	dropped map[uint64]uint32
 }
 
 // unitOf numbers a cell's j-th shard unit so that shard (unit mod n) spreads every cell
@@ -122,7 +126,7 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 	if err != nil {
 		return nil, err
 	}
-	c := &cellState{spec: cs, cellJSON: cj, parts: map[uint64]map[uint64]*engine.Part{}}
+	c := &cellState{spec: cs, cellJSON: cj, parts: map[uint64]map[uint64]*engine.Part{}, dropped: map[uint64]uint32{}}
 	for _, r := range have {
 		if r.Seed == seed {
 			c.done += min(r.To, cs.Replicates) - min(r.From, cs.Replicates)
@@ -152,6 +156,8 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 			// replicate's stored parts are deleted when it completes).
 			got := storedParts[rep]
 			parts := uint64(sz.Parts)
+			var last *task
+			allStored := true
 			for i := uint64(0); i < parts; i++ {
 				a, b := roots*i/parts, roots*(i+1)/parts
 				if a == b {
@@ -172,7 +178,18 @@ func planCell(cs sweep.CellSpec, sz sweep.Sizing, seed uint64, have []results.Ra
 						t.state = stateDone
 					}
 				}
+				allStored = allStored && t.state == stateDone
+				last = t
 				c.tasks = append(c.tasks, t)
+			}
+			// Stored parts that cover the whole replicate were never assembled (the
+			// commit that assembles them deletes them); only a failed store write while
+			// dropping parts that did not assemble can leave them. Computing the last
+			// part again makes its arrival assemble and check them; else the replicate
+			// would silently never be done.
+			if last != nil && allStored {
+				last.state = statePending
+				delete(c.parts[rep], last.rootFrom)
 			}
 		}
 	}
