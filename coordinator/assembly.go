@@ -77,33 +77,13 @@ func (c *Coordinator) dropUnassembledLocked(t *task, prev taskState, cause error
 			c.nDone--
 			s.digest = [32]byte{}
 		}
-		switch {
-		case giveUp:
-			if was != stateParked {
-				c.nParked++
-			}
-			s.state, s.worker = stateParked, ""
-			s.lastErr = parkedForAssembly(rep, times) + "; last: " + cause.Error()
-		case was == stateParked:
-			s.state = stateParked
-		default:
-			c.requeueLocked(s)
-		}
+		c.requeueOrParkLocked(s, was, giveUp, parkedForAssembly(rep, times)+"; last: "+cause.Error())
 	}
 	c.notify()
 
 	err := c.store.Update(func(tx *bolt.Tx) error {
-		parts, err := coordBucket(tx, keyParts)
-		if err != nil {
+		if err := deleteStoredParts(tx, cell.spec.ID, rep, nil); err != nil {
 			return err
-		}
-		if cb := parts.Bucket([]byte(cell.spec.ID)); cb != nil {
-			rk := binary.BigEndian.AppendUint64(nil, rep)
-			if cb.Bucket(rk) != nil {
-				if err := cb.DeleteBucket(rk); err != nil {
-					return err
-				}
-			}
 		}
 		return c.putStatesLocked(tx, affected)
 	})
@@ -135,36 +115,11 @@ func (c *Coordinator) dropUnassembledLocked(t *task, prev taskState, cause error
 func (c *Coordinator) dropStalePartLocked(t *task, prev taskState) error {
 	cell, rep := t.cell, t.from
 	times := cell.dropped[rep]
-	switch {
-	case times >= c.opt.MaxFailures:
-		if prev != stateParked {
-			c.nParked++
-		}
-		t.state, t.worker = stateParked, ""
-		t.lastErr = parkedForAssembly(rep, times)
-	case prev == stateParked:
-		t.state = stateParked
-	default:
-		c.requeueLocked(t)
-	}
+	c.requeueOrParkLocked(t, prev, times >= c.opt.MaxFailures, parkedForAssembly(rep, times))
 	c.notify()
 	err := c.store.Update(func(tx *bolt.Tx) error {
-		parts, err := coordBucket(tx, keyParts)
-		if err != nil {
+		if err := deleteStoredParts(tx, cell.spec.ID, rep, &t.rootFrom); err != nil {
 			return err
-		}
-		if cb := parts.Bucket([]byte(cell.spec.ID)); cb != nil {
-			rk := binary.BigEndian.AppendUint64(nil, rep)
-			if rb := cb.Bucket(rk); rb != nil {
-				if err := rb.Delete(binary.BigEndian.AppendUint64(nil, t.rootFrom)); err != nil {
-					return err
-				}
-				if k, _ := rb.Cursor().First(); k == nil {
-					if err := cb.DeleteBucket(rk); err != nil {
-						return err
-					}
-				}
-			}
 		}
 		return c.putStatesLocked(tx, []*task{t})
 	})
@@ -179,6 +134,51 @@ func (c *Coordinator) dropStalePartLocked(t *task, prev taskState) error {
 	}
 	return fmt.Errorf("replicate %d's parts did not assemble while this part was being committed; "+
 		"it was dropped with them and is queued again", rep)
+}
+
+// requeueOrParkLocked settles part task s, which was in state was before its replicate's
+// parts were dropped: parked with reason if park is set, still parked if it was, else
+// queued again.
+func (c *Coordinator) requeueOrParkLocked(s *task, was taskState, park bool, reason string) {
+	switch {
+	case park:
+		if was != stateParked {
+			c.nParked++
+		}
+		s.state, s.worker = stateParked, ""
+		s.lastErr = reason
+	case was == stateParked:
+		s.state = stateParked
+	default:
+		c.requeueLocked(s)
+	}
+}
+
+// deleteStoredParts deletes the stored parts of replicate rep of cell id: all of them if
+// from is nil, else the one rooted at *from (and the replicate's bucket once empty).
+func deleteStoredParts(tx *bolt.Tx, id string, rep uint64, from *uint64) error {
+	parts, err := coordBucket(tx, keyParts)
+	if err != nil {
+		return err
+	}
+	cb := parts.Bucket([]byte(id))
+	if cb == nil {
+		return nil
+	}
+	rk := binary.BigEndian.AppendUint64(nil, rep)
+	rb := cb.Bucket(rk)
+	if rb == nil {
+		return nil
+	}
+	if from != nil {
+		if err := rb.Delete(binary.BigEndian.AppendUint64(nil, *from)); err != nil {
+			return err
+		}
+		if k, _ := rb.Cursor().First(); k != nil {
+			return nil
+		}
+	}
+	return cb.DeleteBucket(rk)
 }
 
 // putStatesLocked writes the persisted state of tasks that are no longer done: no done
