@@ -91,6 +91,10 @@ type Options struct {
 	// Parts, if > 1, splits every replicate into this many subtree tasks at the sweep's
 	// split_at (or T/2), whatever the cost model says (tests of the split path).
 	Parts int
+	// RetryParked queues the tasks parked by an earlier run again, their failure counts
+	// (and their replicates' assembly failures) cleared. Without it a parked task stays
+	// parked across restarts: a fault that recurs is not recomputed at every resume.
+	RetryParked bool
 }
 
 // Coordinator is the state machine of one sweep over its store.
@@ -145,6 +149,15 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	if err := adoptSpec(st, sw); err != nil {
 		return nil, err
 	}
+	if opt.RetryParked {
+		n, err := unpark(st)
+		if err != nil {
+			return nil, err
+		}
+		if n > 0 && opt.Log != nil {
+			opt.Log.Info("parked tasks queued again, their failure counts cleared", "tasks", n)
+		}
+	}
 	c, err := planned(st, sw, opt)
 	if err != nil {
 		return nil, err
@@ -153,6 +166,46 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	go c.committer()
 	go c.clock()
 	return c, nil
+}
+
+// unpark deletes the persisted state of every parked task, so the plan takes them as
+// never failed, and returns how many there were.
+func unpark(st *results.Store) (int, error) {
+	n := 0
+	err := st.Update(func(tx *bolt.Tx) error {
+		cb := tx.Bucket(bucketCoord)
+		if cb == nil {
+			return nil
+		}
+		tb := cb.Bucket(keyTasks)
+		if tb == nil {
+			return nil
+		}
+		var parked [][]byte
+		if err := tb.ForEach(func(k, v []byte) error {
+			var r taskRecord
+			if err := json.Unmarshal(v, &r); err != nil {
+				return fmt.Errorf("corrupt task state for %s: %w", k, err)
+			}
+			if r.Parked {
+				parked = append(parked, append([]byte(nil), k...))
+			}
+			return nil
+		}); err != nil {
+			return err
+		}
+		for _, k := range parked {
+			if err := tb.Delete(k); err != nil {
+				return err
+			}
+		}
+		n = len(parked)
+		return nil
+	})
+	if err != nil {
+		return 0, fmt.Errorf("%s: %w", st.Path(), err)
+	}
+	return n, nil
 }
 
 // planned makes a coordinator with its plan built from the store, not yet running.

@@ -503,3 +503,72 @@ func leasedCount(co *Coordinator) (n uint64) {
 	}
 	return n
 }
+
+// TestRetryParked: a task parked after repeated failures stays parked when the
+// coordinator is opened again on the same store (a fault that recurs is not recomputed
+// at every resume), and is queued again, its failures cleared, with RetryParked; the
+// sweep then completes and its store equals a direct run's.
+func TestRetryParked(t *testing.T) {
+	sw := mustSweep(t, testSweep)
+	st := newStore(t, sw)
+	ctx := context.Background()
+	co, err := Open(st, sw, Options{PerTask: 10, MaxFailures: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
+	lease, _ := co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 1})
+	id := lease.Tasks[0].TaskId
+	for range 2 {
+		co.Release(ctx, &pb.ReleaseRequest{WorkerId: reg.WorkerId, TaskIds: []string{id}, Error: "scratch disk full"})
+		co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 1})
+	}
+	if s := co.StatusNow(); len(s.Parked) != 1 || s.Parked[0].TaskId != id {
+		t.Fatalf("want %s parked, got %v", id, s.Parked)
+	}
+	co.Close()
+
+	co, err = Open(st, sw, Options{PerTask: 10, MaxFailures: 2})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if _, err := worker.Run(ctx, co, worker.Options{Threads: 2}); err != nil {
+		t.Fatal(err)
+	}
+	if fin, parked := co.Finished(); !fin || parked != 1 {
+		t.Fatalf("reopened without RetryParked: finished %v, parked %d; want the task still parked", fin, parked)
+	}
+	co.Close()
+
+	co, err = Open(st, sw, Options{PerTask: 10, MaxFailures: 2, RetryParked: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if s := co.StatusNow(); len(s.Parked) != 0 {
+		t.Fatalf("RetryParked left %v parked", s.Parked)
+	}
+	// One more failure does not park it again: its count was cleared.
+	reg, _ = co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
+	lease, _ = co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 1})
+	if len(lease.Tasks) != 1 || lease.Tasks[0].TaskId != id {
+		t.Fatalf("want %s leased, got %v", id, lease.Tasks)
+	}
+	co.Release(ctx, &pb.ReleaseRequest{WorkerId: reg.WorkerId, TaskIds: []string{id}, Error: "scratch disk full"})
+	if s := co.StatusNow(); len(s.Parked) != 0 {
+		t.Fatalf("one failure after the retry parked %v", s.Parked)
+	}
+	if _, err := worker.Run(ctx, co, worker.Options{Threads: 2}); err != nil {
+		t.Fatal(err)
+	}
+	if fin, parked := co.Finished(); !fin || parked != 0 {
+		t.Fatalf("after the retry: finished %v, parked %d", fin, parked)
+	}
+	co.Close()
+	got, err := st.ContentDigest()
+	if err != nil {
+		t.Fatal(err)
+	}
+	if got != reference(t, sw) {
+		t.Fatal("the store after the retry differs from a direct run's")
+	}
+}

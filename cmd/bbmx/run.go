@@ -81,6 +81,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")
 	noReport := fs.Bool("no-report", false, "do not write a report at the end")
 	verbose := fs.Bool("verbose", false, "log every lease and commit event")
+	retry := fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
 	path, err := positionalArg(fs, args, stderr, "name one sweep file, e.g. bbmx run examples/quick.toml")
 	if err != nil {
 		return err
@@ -88,7 +89,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	if *threads < 1 || *threads > 4096 {
 		return usagef("--threads must be between 1 and 4096, got %d", *threads)
 	}
-	opt := coordinator.Options{Lease: 8 * time.Second, Log: newLogger(stderr, *verbose)}
+	opt := coordinator.Options{Lease: 8 * time.Second, Log: newLogger(stderr, *verbose), RetryParked: *retry}
 	suffix := ""
 	if *shard != "" {
 		if opt.Shard, opt.Shards, err = parseShard(*shard); err != nil {
@@ -184,7 +185,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 		sw.Name, which, stats.Tasks, wall.Round(time.Millisecond), *threads, stats.Compute.Round(time.Millisecond))
 	fmt.Fprintf(stdout, "store %s, content digest %s\n", *storePath, hex.EncodeToString(digest[:]))
 	if len(status.Parked) > 0 {
-		return fmt.Errorf("%d task(s) parked after repeated failures (listed above); fix the cause and run again", len(status.Parked))
+		return fmt.Errorf("%d task(s) parked after repeated failures (listed above); fix the cause, then run again with --retry-parked", len(status.Parked))
 	}
 	if opt.Shards > 1 || *noReport {
 		return nil

@@ -28,7 +28,8 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		"Runs the coordinator of a sweep: plans what the store still lacks into tasks, leases them to\n"+
 			"workers ('bbmx work'), and commits every accepted result to the store. Restarting it on the\n"+
 			"same store resumes: nothing finished is redone, nothing is counted twice. It exits 0 when the\n"+
-			"sweep is complete (1 if some task failed too often and was parked; run again to retry it).\n\n"+
+			"sweep is complete (1 if some task failed too often and was parked: a parked task stays parked\n"+
+			"when serve is started again, until --retry-parked queues it again).\n\n"+
 			"Security: it listens on loopback unless --listen names another address; every call must carry\n"+
 			"the shared token (--token-file; 'bbmx secrets init' makes one). Off loopback use TLS\n"+
 			"(--tls-cert/--tls-key) and preferably client certificates (--client-ca), and open the port\n"+
@@ -46,6 +47,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
 	lease := fs.Duration("lease", 2*time.Minute, "lease length; workers send heartbeats every quarter of it")
 	verbose := fs.Bool("verbose", false, "log worker registrations and other routine events")
+	retry := fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
 	path, err := positionalArg(fs, args, stderr, "name one sweep file")
 	if err != nil {
 		return err
@@ -79,7 +81,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer st.Close()
-	co, err := coordinator.Open(st, sw, coordinator.Options{Lease: *lease, Log: log})
+	co, err := coordinator.Open(st, sw, coordinator.Options{Lease: *lease, Log: log, RetryParked: *retry})
 	if err != nil {
 		return err
 	}
@@ -168,7 +170,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		time.Sleep(min(*lease/4, 3*time.Second))
 	}
 	if len(status.Parked) > 0 {
-		return errors.New("some tasks were parked after repeated failures (see above); fix the cause and serve again to retry them")
+		return errors.New("some tasks were parked after repeated failures (see above); fix the cause, then serve again with --retry-parked")
 	}
 	return nil
 }
