@@ -2,7 +2,8 @@ package engine
 
 import "math"
 
-// waveBatch is how many broods wave3 takes off its stack at a time.
+// waveBatch is how many broods wave3 takes off its stack at a time (binary branching;
+// for k children, 2*waveBatch/k, so that a batch holds about as many nodes).
 const waveBatch = 128
 
 // brood is the children of one branching node, still to be walked: the parent's mixes
@@ -14,7 +15,7 @@ type brood struct {
 }
 
 // wave3 walks the full subtree of the node with key k, born at birth at p (d <= 3). It
-// takes up to waveBatch broods at a time off a stack, draws each child's lifetime and
+// takes a batch of broods at a time off a stack (up to waveBatch), draws each child's lifetime and
 // increment, and pushes the child's own brood or keeps it as a leaf without a branch,
 // then records the batch's leaves. It gives the same part as node, draw for draw and
 // rounding for rounding (TestWaveMatchesNode).
@@ -28,8 +29,9 @@ type brood struct {
 // top-K set breaks ties by position, the histogram and population are counts, and
 // checkpoint sums are exact.
 //
-// Memory stays O(depth): a batch replaces at most waveBatch broods by at most
-// waveBatch*k, so the stack grows by at most waveBatch*(k-1) broods per tree level.
+// Memory stays O(depth): a batch replaces at most b = max(1, 2*waveBatch/k) broods by at
+// most b*k, so the stack grows by at most b*(k-1) broods (about 2*waveBatch) per tree
+// level.
 func (w *walker) wave3(k key, birth float64, p vec) {
 	// The root is no one's child: walk it alone.
 	death := birth + w.start(k)
@@ -42,13 +44,14 @@ func (w *walker) wave3(k key, birth float64, p vec) {
 	st := append(w.stack[:0], brood{a, b, death, q})
 	var batch [waveBatch]brood
 	d, kids := w.d, w.k
-	if len(w.leafBuf) < kids*waveBatch {
-		w.leafBuf = make([]vec, kids*waveBatch)
+	most := max(1, 2*waveBatch/kids) // broods per batch
+	if len(w.leafBuf) < kids*most {
+		w.leafBuf = make([]vec, kids*most)
 	}
 	leaves := w.leafBuf
 	sigma, lastCheck := w.sigma, w.lastCheck
 	for len(st) > 0 {
-		n := min(len(st), waveBatch)
+		n := min(len(st), most)
 		base := len(st) - n
 		copy(batch[:], st[base:])
 		if need := base + kids*n; need > cap(st) {

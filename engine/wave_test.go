@@ -17,6 +17,7 @@ func TestWaveMatchesNode(t *testing.T) {
 		{Sigma: 1, Beta: 1, Children: 2},
 		{Sigma: 2, Beta: 0.5, Children: 3},
 		{Sigma: 0.7, Beta: 0.7, Children: 2},
+		{Sigma: 1.3, Beta: 0.1, Children: 9}, // 28 broods per batch
 	}
 	for d := 1; d <= 3; d++ {
 		for mi, m := range models {
