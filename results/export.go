@@ -7,6 +7,7 @@ import (
 	"fmt"
 	"io"
 	"os"
+	"path/filepath"
 	"strconv"
 
 	"github.com/parquet-go/parquet-go"
@@ -71,34 +72,69 @@ func (s *Store) Rows() ([]RecordRow, error) {
 // ExportRecords writes the store's per-replicate records to path as "csv", "json"
 // (JSON lines) or "parquet". In CSV, list columns are written as semicolon-separated numbers.
 func (s *Store) ExportRecords(path, format string) error {
+	var write func(w io.Writer, rows []RecordRow) error
+	switch format {
+	case "parquet":
+		write = func(w io.Writer, rows []RecordRow) error { return parquet.Write(w, rows) }
+	case "json":
+		write = writeJSONLines
+	case "csv":
+		write = writeCSV
+	default:
+		return fmt.Errorf("unknown export format %q (csv, json or parquet)", format)
+	}
+	if err := s.checkExportTarget(path); err != nil {
+		return err
+	}
 	rows, err := s.Rows()
 	if err != nil {
 		return err
 	}
-	switch format {
-	case "parquet":
-		return parquet.WriteFile(path, rows)
-	case "csv", "json":
-	default:
-		return fmt.Errorf("unknown export format %q (csv, json or parquet)", format)
-	}
-	f, err := os.Create(path)
+	return replaceFile(path, func(w io.Writer) error { return write(w, rows) })
+}
+
+// checkExportTarget refuses to write an export over the store being read or over any
+// other bbolt database: a mistyped --out would otherwise destroy a sweep's results.
+func (s *Store) checkExportTarget(path string) error {
+	fi, err := os.Stat(path)
 	if err != nil {
-		return err
+		return nil // nothing there to lose (or an error that creating the file reports)
 	}
-	w := bufio.NewWriter(f)
-	if format == "json" {
-		err = writeJSONLines(w, rows)
-	} else {
-		err = writeCSV(w, rows)
+	if own, err := os.Stat(s.path); err == nil && os.SameFile(fi, own) {
+		return fmt.Errorf("%s is the store being exported: choose another output file", path)
+	}
+	if fi.Mode().IsRegular() && hasDatabaseHeader(path) {
+		return fmt.Errorf("%s is a database file, not an earlier export: refusing to overwrite it", path)
+	}
+	return nil
+}
+
+// replaceFile writes a file through write under a temporary name beside path and renames
+// it over path only when complete, so a failed export leaves whatever was at path intact.
+func replaceFile(path string, write func(w io.Writer) error) error {
+	f, err := os.CreateTemp(filepath.Dir(path), "."+filepath.Base(path)+".*.partial")
+	if err != nil {
+		return fmt.Errorf("export to %s: %w", path, err)
+	}
+	bw := bufio.NewWriter(f)
+	err = write(bw)
+	if err == nil {
+		err = bw.Flush()
 	}
 	if err == nil {
-		err = w.Flush()
+		err = f.Chmod(0o644)
 	}
 	if cerr := f.Close(); err == nil {
 		err = cerr
 	}
-	return err
+	if err == nil {
+		err = os.Rename(f.Name(), path)
+	}
+	if err != nil {
+		os.Remove(f.Name())
+		return fmt.Errorf("export to %s: %w", path, err)
+	}
+	return nil
 }
 
 func writeJSONLines(w io.Writer, rows []RecordRow) error {
@@ -182,5 +218,8 @@ func (s *Store) ExportCells(path, format string) error {
 	if err != nil {
 		return err
 	}
-	return os.WriteFile(path, data, 0o644)
+	if err := s.checkExportTarget(path); err != nil {
+		return err
+	}
+	return replaceFile(path, func(w io.Writer) error { _, err := w.Write(data); return err })
 }

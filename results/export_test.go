@@ -75,3 +75,40 @@ func TestExportCellsOneReplicate(t *testing.T) {
 		t.Fatalf("rows %+v (%v) from %s", rows, err, b)
 	}
 }
+
+// An export never overwrites the store it reads, nor any other store: the output path
+// named by mistake would otherwise be truncated and the sweep's results lost. Each
+// format is refused and both stores keep their content.
+func TestExportRefusesToOverwriteAStore(t *testing.T) {
+	dir := t.TempDir()
+	path, other := filepath.Join(dir, "s.db"), filepath.Join(dir, "other.db")
+	storeWith(t, path, 8, 0, 5)
+	storeWith(t, other, 9, 0, 5)
+	want, wantOther := contentDigest(t, path), contentDigest(t, other)
+	st, err := Open(path, true)
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, target := range []string{path, other} {
+		for _, format := range []string{"csv", "json", "parquet"} {
+			if err := st.ExportRecords(target, format); err == nil {
+				t.Errorf("records as %s over %s: no error", format, filepath.Base(target))
+			}
+		}
+		for _, format := range []string{"csv", "json"} {
+			if err := st.ExportCells(target, format); err == nil {
+				t.Errorf("cells as %s over %s: no error", format, filepath.Base(target))
+			}
+		}
+	}
+	st.Close()
+	if got := contentDigest(t, path); got != want {
+		t.Fatal("exporting changed the store")
+	}
+	if got := contentDigest(t, other); got != wantOther {
+		t.Fatal("exporting changed another store")
+	}
+	if left, _ := filepath.Glob(filepath.Join(dir, ".*partial")); len(left) != 0 {
+		t.Fatalf("temporary files left: %v", left)
+	}
+}

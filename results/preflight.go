@@ -29,9 +29,8 @@ func preflight(path string) error {
 	if _, err := io.ReadFull(f, head); err != nil {
 		return fmt.Errorf("%s is not a readable bbmx store: too short (%d bytes)", path, st.Size())
 	}
-	const magic = 0xED0CDAED
 	readMeta := func(b []byte) (pageSize, hwm, txid uint64, ok bool) {
-		if binary.LittleEndian.Uint32(b[16:]) != magic {
+		if binary.LittleEndian.Uint32(b[16:]) != boltMagic {
 			return 0, 0, 0, false
 		}
 		return uint64(binary.LittleEndian.Uint32(b[24:])), binary.LittleEndian.Uint64(b[56:]), binary.LittleEndian.Uint64(b[64:]), true
@@ -50,4 +49,21 @@ func preflight(path string) error {
 		return fmt.Errorf("%s is truncated: %d bytes, its header says at least %d", path, st.Size(), need)
 	}
 	return nil
+}
+
+// boltMagic is the number at byte 16 of every bbolt meta page.
+const boltMagic = 0xED0CDAED
+
+// hasDatabaseHeader reports whether the file at path begins with a bbolt meta page.
+func hasDatabaseHeader(path string) bool {
+	f, err := os.Open(path)
+	if err != nil {
+		return false
+	}
+	defer f.Close()
+	head := make([]byte, 20)
+	if _, err := io.ReadFull(f, head); err != nil {
+		return false
+	}
+	return binary.LittleEndian.Uint32(head[16:]) == boltMagic
 }
