@@ -97,22 +97,31 @@ func MergeStores(out string, inputs []string) error {
 		}
 		for _, id := range ids {
 			var cj []byte
-			var hasRecords bool
+			var kept int
 			s.db.View(func(tx *bolt.Tx) error {
 				cb := tx.Bucket(bucketCells).Bucket([]byte(id))
 				cj = bytes.Clone(cb.Get([]byte("cell")))
-				hasRecords = cb.Bucket(keyRecords) != nil
+				if rb := cb.Bucket(keyRecords); rb != nil {
+					kept = rb.Stats().KeyN
+				}
 				return nil
 			})
 			if prev, ok := cellJSON[id]; ok && !bytes.Equal(prev, cj) {
 				return fmt.Errorf("cell %s has different settings in %s and %s (model or observables differ): refusing to merge", id, inputs[0], inputs[i])
 			}
-			c, _, err := s.CellSketch(id)
+			c, sk, err := s.CellSketch(id)
 			if err != nil {
 				return fmt.Errorf("%s: %w", inputs[i], err)
 			}
-			if !hasRecords {
+			if kept == 0 {
 				return fmt.Errorf("%s: cell %s holds no per-replicate records, which merging needs to check overlaps", inputs[i], id)
+			}
+			// The output's sketches are rebuilt from records, so a replicate counted in the
+			// sketch without its record (a store kept records for only some of its tasks)
+			// would vanish from the merge.
+			if uint64(kept) != sk.N {
+				return fmt.Errorf("%s: cell %s holds %d replicates but the records of only %d; merging rebuilds cells from records and would lose the rest",
+					inputs[i], id, sk.N, kept)
 			}
 			cellJSON[id], cells[id] = cj, c
 			holders[id] = append(holders[id], i)

@@ -6,6 +6,7 @@ import (
 	"os"
 	"path/filepath"
 	"reflect"
+	"strings"
 	"testing"
 )
 
@@ -157,5 +158,33 @@ func TestMergeSmallBatches(t *testing.T) {
 	want := map[string]map[string][]Range{a: {"cell": {{Seed: 3, From: 0, To: 20}}}, b: {"cell": {{Seed: 3, From: 20, To: 50}}}}
 	if !reflect.DeepEqual(prov, want) {
 		t.Fatalf("provenance %v, want %v", prov, want)
+	}
+}
+
+// A store that kept the records of only some of its tasks (a sweep with keep_records =
+// false that `bbmx sim --store` later added to) is refused by merge, which rebuilds each
+// cell from its records: it used to write a cell with only the kept replicates.
+func TestMergeRefusesReplicatesWithoutRecords(t *testing.T) {
+	dir := t.TempDir()
+	in, out := filepath.Join(dir, "in.db"), filepath.Join(dir, "out.db")
+	c := testCell()
+	st, err := Create(in, []byte("partly kept"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = st.Commit([]TaskResult{
+		{CellID: "cell", Cell: c, Seed: 1, From: 0, Records: records(t, c, 1, 0, 5), KeepRecords: true},
+		{CellID: "cell", Cell: c, Seed: 1, From: 5, Records: records(t, c, 1, 5, 10)},
+	}, nil)
+	st.Close()
+	if err != nil {
+		t.Fatal(err)
+	}
+	err = MergeStores(out, []string{in})
+	if err == nil || !strings.Contains(err.Error(), "holds 10 replicates but the records of only 5") {
+		t.Fatalf("merge of a store with 5 of 10 records: %v", err)
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Fatal("output written")
 	}
 }
