@@ -160,7 +160,17 @@ func MergeStores(out string, inputs []string) error {
 		return fmt.Errorf("%s already exists", out)
 	}
 	tmp := out + ".merging"
-	os.Remove(tmp) // left by a merge that was killed
+	if fi, err := os.Stat(tmp); err == nil {
+		// Left by a merge that was killed, unless it is one of this merge's inputs.
+		for _, p := range inputs {
+			if pi, err := os.Stat(p); err == nil && os.SameFile(fi, pi) {
+				return fmt.Errorf("input %s is where the merge builds %s before renaming it: rename that input or choose another output", p, out)
+			}
+		}
+		if err := os.Remove(tmp); err != nil {
+			return fmt.Errorf("remove %s left by an earlier merge: %w", tmp, err)
+		}
+	}
 	dst, err := createForMerge(tmp, spec, stream, srcs)
 	if err != nil {
 		return err

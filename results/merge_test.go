@@ -188,3 +188,24 @@ func TestMergeRefusesReplicatesWithoutRecords(t *testing.T) {
 		t.Fatal("output written")
 	}
 }
+
+// The output is built under OUT.merging, and a file left there by a killed merge is
+// removed first; an input of that name must not be: it used to be deleted, and the
+// merge then went on without it.
+func TestMergeKeepsAnInputNamedLikeItsTemporary(t *testing.T) {
+	dir := t.TempDir()
+	a, out := filepath.Join(dir, "a.db"), filepath.Join(dir, "out.db")
+	in := out + ".merging"
+	storeWith(t, a, 1, 0, 3)
+	storeWith(t, in, 2, 0, 3)
+	want := contentDigest(t, in)
+	if err := MergeStores(out, []string{a, in}); err == nil || !strings.Contains(err.Error(), "rename that input") {
+		t.Fatalf("merge whose temporary is an input: %v", err)
+	}
+	if got := contentDigest(t, in); got != want {
+		t.Fatal("the input changed")
+	}
+	if _, err := os.Stat(out); err == nil {
+		t.Fatal("output written")
+	}
+}
