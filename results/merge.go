@@ -321,6 +321,8 @@ func cellSketcher(c engine.Cell, id string, inputs []string, in <-chan *mergeBat
 				failed = fmt.Errorf("%s: cell %s replicate %d: %w", inputs[b.src[i]], id, rep, err)
 			} else if rec.Replicate != rep {
 				failed = fmt.Errorf("%s: cell %s: record under key %x is replicate %d", inputs[b.src[i]], id, k, rec.Replicate)
+			} else if err := checkFinite(rec); err != nil {
+				failed = fmt.Errorf("%s: cell %s: %w: %w", inputs[b.src[i]], id, engine.ErrCorruptRecord, err)
 			}
 		}
 		last := b.last

@@ -3,11 +3,17 @@ package results
 import (
 	"bytes"
 	"errors"
+	"fmt"
+	"math"
 	"os"
 	"path/filepath"
 	"reflect"
 	"strings"
 	"testing"
+
+	bolt "go.etcd.io/bbolt"
+
+	"bbmx/engine"
 )
 
 func storeWith(t *testing.T, path string, seed, from, to uint64) {
@@ -207,5 +213,73 @@ func TestMergeKeepsAnInputNamedLikeItsTemporary(t *testing.T) {
 	}
 	if _, err := os.Stat(out); err == nil {
 		t.Fatal("output written")
+	}
+}
+
+// tamperRecord rewrites one stored record of cell "cell" through change, as damage or a
+// hand edit would.
+func tamperRecord(t *testing.T, path string, seed, rep uint64, change func(rec *engine.Record)) {
+	t.Helper()
+	db, err := bolt.Open(path, 0o644, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer db.Close()
+	err = db.Update(func(tx *bolt.Tx) error {
+		rb := tx.Bucket(bucketCells).Bucket([]byte("cell")).Bucket(keyRecords)
+		k := recordKey(seed, rep)
+		rec, _, err := engine.DecodeRecord(rb.Get(k))
+		if err != nil {
+			return err
+		}
+		change(&rec)
+		return rb.Put(k, rec.AppendBinary(nil))
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+}
+
+// A stored record holding NaN or an infinity (which the engine never writes) is a clear
+// error naming the cell and replicate wherever records are read: merge used to crash the
+// process indexing a histogram bin with NaN, and JSON export failed with no word of
+// where. A sketch refusing such records is left as it was.
+func TestNonFiniteRecordIsAnError(t *testing.T) {
+	dir := t.TempDir()
+	for i, change := range []func(rec *engine.Record){
+		func(rec *engine.Record) { rec.Top[0].Radius = math.NaN() },
+		func(rec *engine.Record) { rec.Top[1].Dir[0] = math.Inf(1) },
+		func(rec *engine.Record) { rec.Checks[1].W = math.Inf(-1) },
+	} {
+		in := filepath.Join(dir, fmt.Sprintf("in%d.db", i))
+		storeWith(t, in, 3, 0, 6)
+		tamperRecord(t, in, 3, 4, change)
+		err := MergeStores(filepath.Join(dir, fmt.Sprintf("out%d.db", i)), []string{in})
+		if err == nil || !strings.Contains(err.Error(), in) || !strings.Contains(err.Error(), "replicate 4") || !strings.Contains(err.Error(), "non-finite") {
+			t.Errorf("case %d: merge: %v", i, err)
+		}
+		st, err := Open(in, true)
+		if err != nil {
+			t.Fatal(err)
+		}
+		err = st.ExportRecords(filepath.Join(dir, fmt.Sprintf("r%d.json", i)), "json")
+		if err == nil || !strings.Contains(err.Error(), "cell cell") || !strings.Contains(err.Error(), "replicate 4") {
+			t.Errorf("case %d: export: %v", i, err)
+		}
+		st.Close()
+	}
+	c := testCell()
+	recs := records(t, c, 3, 0, 6)
+	sk := NewSketch(c)
+	if err := sk.AddRecords(c, 3, 0, recs[:2]); err != nil {
+		t.Fatal(err)
+	}
+	before := sk.AppendBinary(nil)
+	recs[4].Checks[0].Z = math.NaN()
+	if err := sk.AddRecords(c, 3, 2, recs[2:]); err == nil {
+		t.Fatal("a NaN Z was added")
+	}
+	if !bytes.Equal(sk.AppendBinary(nil), before) {
+		t.Fatal("a refused batch changed the sketch")
 	}
 }

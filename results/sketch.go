@@ -14,6 +14,7 @@ import (
 	"fmt"
 	"math"
 	"math/bits"
+	"slices"
 	"sort"
 
 	"bbmx/engine"
@@ -89,14 +90,9 @@ func ShiftBinIndex(x float64) int {
 }
 
 // AddRecords adds the records of replicates [from, to) run with seed; recs must be those
-// replicates in order.
+// replicates in order. On error the sketch is unchanged.
 func (s *Sketch) AddRecords(c engine.Cell, seed, from uint64, recs []engine.Record) error {
 	c = c.WithDefaults()
-	r := Range{Seed: seed, From: from, To: from + uint64(len(recs))}
-	if err := s.addRange(r); err != nil {
-		return err
-	}
-	centre := c.Model.Centring(c.Horizon)
 	for i := range recs {
 		rec := &recs[i]
 		if rec.Replicate != from+uint64(i) {
@@ -105,6 +101,20 @@ func (s *Sketch) AddRecords(c engine.Cell, seed, from uint64, recs []engine.Reco
 		if len(rec.Hist) != len(s.Intensity) || len(rec.Checks) != len(s.Checks) {
 			return fmt.Errorf("replicate %d was recorded with different settings", rec.Replicate)
 		}
+		if len(rec.Top) == 0 {
+			return fmt.Errorf("replicate %d has no particles", rec.Replicate)
+		}
+		if err := checkFinite(rec); err != nil {
+			return err
+		}
+	}
+	r := Range{Seed: seed, From: from, To: from + uint64(len(recs))}
+	if err := s.addRange(r); err != nil {
+		return err
+	}
+	centre := c.Model.Centring(c.Horizon)
+	for i := range recs {
+		rec := &recs[i]
 		x := rec.MaxRadius() - centre
 		p := x
 		for k := range s.Shift {
@@ -129,6 +139,24 @@ func (s *Sketch) AddRecords(c engine.Cell, seed, from uint64, recs []engine.Reco
 			}
 		}
 		s.N++
+	}
+	return nil
+}
+
+// checkFinite returns an error naming the first NaN or infinite number in rec. The
+// engine never records one, so it means a damaged record; let in, it would index no
+// histogram bin, poison exact sums and make JSON exports fail.
+func checkFinite(rec *engine.Record) error {
+	bad := func(x float64) bool { return math.IsNaN(x) || math.IsInf(x, 0) }
+	for i, p := range rec.Top {
+		if bad(p.Radius) || slices.ContainsFunc(p.Dir, bad) {
+			return fmt.Errorf("replicate %d: particle %d of the top list has a non-finite radius or direction", rec.Replicate, i)
+		}
+	}
+	for j, ck := range rec.Checks {
+		if bad(ck.Time) || bad(ck.Z) || bad(ck.W) || slices.ContainsFunc(ck.ZDir, bad) {
+			return fmt.Errorf("replicate %d: checkpoint %d holds a non-finite value", rec.Replicate, j)
+		}
 	}
 	return nil
 }

@@ -389,6 +389,9 @@ func (s *Store) Records(id string, fn func(seed uint64, r engine.Record) error) 
 			if rec.Replicate != binary.BigEndian.Uint64(k[8:]) {
 				return fmt.Errorf("cell %s: record under key %x is replicate %d", id, k, rec.Replicate)
 			}
+			if err := checkFinite(&rec); err != nil {
+				return fmt.Errorf("cell %s: %w: %w", id, engine.ErrCorruptRecord, err)
+			}
 			return fn(binary.BigEndian.Uint64(k), rec)
 		})
 	})
