@@ -4,6 +4,8 @@ import (
 	"context"
 	"crypto/tls"
 	"fmt"
+	"net"
+	"strconv"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/credentials"
@@ -22,6 +24,22 @@ type TLSFiles struct {
 	ServerName        string // name to verify in the coordinator's certificate (default: the host dialled)
 }
 
+// CheckAddress refuses a coordinator address that is not host:port with a numeric port.
+// Checked before dialling because gRPC would otherwise take a missing port as 443 and
+// retry an address that cannot work for as long as Wait allows.
+func CheckAddress(addr string) error {
+	_, port, err := net.SplitHostPort(addr) // an empty host is this machine, as for net.Dial
+	if err == nil {
+		if p, perr := strconv.ParseUint(port, 10, 16); perr != nil || p == 0 {
+			err = fmt.Errorf("port %q is not a number between 1 and 65535", port)
+		}
+	}
+	if err != nil {
+		return fmt.Errorf("coordinator address %q is not host:port (e.g. head01:7421): %v", addr, err)
+	}
+	return nil
+}
+
 // remote is the gRPC Client.
 type remote struct {
 	conn  *grpc.ClientConn
@@ -32,6 +50,9 @@ type remote struct {
 // Dial connects to a coordinator at addr (host:port). The connection is lazy:
 // unreachable coordinators show up as transient errors that Run retries.
 func Dial(addr, token string, f TLSFiles) (Client, func() error, error) {
+	if err := CheckAddress(addr); err != nil {
+		return nil, nil, err
+	}
 	var creds credentials.TransportCredentials
 	if f.CAFile == "" && f.CertFile == "" {
 		creds = insecure.NewCredentials()

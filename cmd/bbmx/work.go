@@ -107,6 +107,11 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 			return nil
 		}
 	}
+	if *cf.coordinator != "" {
+		if err := worker.CheckAddress(addr); err != nil {
+			return usagef("--coordinator: %v", err)
+		}
+	}
 	cl, closeFn, err := cf.dial(addr)
 	if err != nil {
 		return err
