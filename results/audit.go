@@ -45,7 +45,7 @@ func (s *Store) Audit(sample int, seed uint64) (AuditReport, error) {
 		kept := true
 		// The raw bytes are sampled, not decoded records: what cannot be decoded is
 		// reported as a mismatch instead of stopping the audit.
-		err = s.db.View(func(tx *bolt.Tx) error {
+		err = s.view(func(tx *bolt.Tx) error {
 			rb := tx.Bucket(bucketCells).Bucket([]byte(id)).Bucket(keyRecords)
 			if rb == nil {
 				kept = false

@@ -98,7 +98,7 @@ func MergeStores(out string, inputs []string) error {
 		for _, id := range ids {
 			var cj []byte
 			var kept int
-			s.db.View(func(tx *bolt.Tx) error {
+			err := s.view(func(tx *bolt.Tx) error {
 				cb := tx.Bucket(bucketCells).Bucket([]byte(id))
 				cj = bytes.Clone(cb.Get([]byte("cell")))
 				if rb := cb.Bucket(keyRecords); rb != nil {
@@ -106,6 +106,9 @@ func MergeStores(out string, inputs []string) error {
 				}
 				return nil
 			})
+			if err != nil {
+				return err
+			}
 			if prev, ok := cellJSON[id]; ok && !bytes.Equal(prev, cj) {
 				return fmt.Errorf("cell %s has different settings in %s and %s (model or observables differ): refusing to merge", id, inputs[0], inputs[i])
 			}
@@ -204,6 +207,15 @@ func createForMerge(out string, spec []byte, stream int, srcs []*Store) (*Store,
 // srcs[which[j]], calling fn with the key, the value from each of those inputs (nil
 // where absent) and the first j holding it. Keys and values are valid only during fn.
 func walkRecords(srcs []*Store, which []int, id string, fn func(k []byte, vals [][]byte, first int) error) error {
+	names := make([]string, len(which))
+	for j, i := range which {
+		names[j] = srcs[i].path
+	}
+	g := damageGuard{what: "cell " + id + " of " + strings.Join(names, " or ")}
+	return g.run(func() error { return walkRecordsUnguarded(srcs, which, id, fn) })
+}
+
+func walkRecordsUnguarded(srcs []*Store, which []int, id string, fn func(k []byte, vals [][]byte, first int) error) error {
 	txs := make([]*bolt.Tx, 0, len(which))
 	defer func() {
 		for _, tx := range txs {
@@ -366,7 +378,7 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 			b.last = last
 			toSketch <- b
 			var sketch []byte
-			err := dst.db.Update(func(tx *bolt.Tx) error {
+			err := dst.update(func(tx *bolt.Tx) error {
 				cb, err := tx.Bucket(bucketCells).CreateBucketIfNotExists([]byte(id))
 				if err != nil {
 					return err
@@ -441,7 +453,7 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 			return err
 		}
 	}
-	err := dst.db.Update(func(tx *bolt.Tx) error {
+	err := dst.update(func(tx *bolt.Tx) error {
 		b, err := tx.CreateBucketIfNotExists(bucketProvenance)
 		if err != nil {
 			return err
@@ -463,7 +475,7 @@ func writeMerged(dst *Store, srcs []*Store, inputs, ids []string, holders map[st
 // Provenance returns, for a merged store, which input gave which replicate ranges per cell.
 func (s *Store) Provenance() (map[string]map[string][]Range, error) {
 	out := map[string]map[string][]Range{}
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		b := tx.Bucket(bucketProvenance)
 		if b == nil {
 			return nil

@@ -111,28 +111,35 @@ func Open(path string, readOnly bool) (*Store, error) {
 	if err := preflight(path); err != nil {
 		return nil, err
 	}
-	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second, ReadOnly: readOnly})
-	if err != nil {
-		if errors.Is(err, bolt.ErrTimeout) {
-			return nil, fmt.Errorf("%s is in use by another process", path)
+	var db *bolt.DB
+	g := damageGuard{what: path}
+	err := g.run(func() error {
+		var err error
+		db, err = bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second, ReadOnly: readOnly})
+		if err != nil {
+			if errors.Is(err, bolt.ErrTimeout) {
+				return fmt.Errorf("%s is in use by another process", path)
+			}
+			return fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
 		}
-		return nil, fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
-	}
-	err = db.View(func(tx *bolt.Tx) error {
-		m := tx.Bucket(bucketMeta)
-		if m == nil || tx.Bucket(bucketCells) == nil {
-			return fmt.Errorf("%s is a bbolt file but not a bbmx store", path)
-		}
-		if f := m.Get([]byte("format")); string(f) != storeFormat {
-			return fmt.Errorf("%s has store format %q; this bbmx reads %q", path, f, storeFormat)
-		}
-		if e := m.Get([]byte("engine")); len(e) != 1 || e[0] != engine.FormatVersion {
-			return fmt.Errorf("%s holds records of engine format %v; this bbmx writes %d", path, e, engine.FormatVersion)
-		}
-		return nil
+		return db.View(func(tx *bolt.Tx) error {
+			m := tx.Bucket(bucketMeta)
+			if m == nil || tx.Bucket(bucketCells) == nil {
+				return fmt.Errorf("%s is a bbolt file but not a bbmx store", path)
+			}
+			if f := m.Get([]byte("format")); string(f) != storeFormat {
+				return fmt.Errorf("%s has store format %q; this bbmx reads %q", path, f, storeFormat)
+			}
+			if e := m.Get([]byte("engine")); len(e) != 1 || e[0] != engine.FormatVersion {
+				return fmt.Errorf("%s holds records of engine format %v; this bbmx writes %d", path, e, engine.FormatVersion)
+			}
+			return nil
+		})
 	})
 	if err != nil {
-		db.Close()
+		if db != nil {
+			db.Close()
+		}
 		return nil, err
 	}
 	return &Store{db: db, path: path}, nil
@@ -145,7 +152,7 @@ func (s *Store) Close() error { return s.db.Close() }
 // simulated the store's records.
 func (s *Store) Stream() (int, error) {
 	v := 1 // stores from before the version was recorded
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		if b := tx.Bucket(bucketMeta).Get([]byte("stream")); b != nil {
 			if len(b) != 1 || b[0] == 0 {
 				return fmt.Errorf("%s: meta/stream is %v, not a stream version", s.path, b)
@@ -175,7 +182,7 @@ func (s *Store) CheckStream() error {
 
 // Spec returns the canonical sweep spec and its SHA-256.
 func (s *Store) Spec() (spec []byte, sum [32]byte, err error) {
-	err = s.db.View(func(tx *bolt.Tx) error {
+	err = s.view(func(tx *bolt.Tx) error {
 		m := tx.Bucket(bucketMeta)
 		spec = bytes.Clone(m.Get([]byte("spec")))
 		copy(sum[:], m.Get([]byte("spec_sha256")))
@@ -188,7 +195,7 @@ func (s *Store) Spec() (spec []byte, sum [32]byte, err error) {
 // The caller checks that the new spec may continue the store.
 func (s *Store) SetSpec(spec []byte) error {
 	sum := sha256.Sum256(spec)
-	return s.db.Update(func(tx *bolt.Tx) error {
+	return s.update(func(tx *bolt.Tx) error {
 		m := tx.Bucket(bucketMeta)
 		if err := m.Put([]byte("spec"), spec); err != nil {
 			return err
@@ -219,7 +226,7 @@ func (s *Store) ContentDigest() ([32]byte, error) {
 		h.Write(n[:])
 		h.Write(b)
 	}
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketCells).ForEachBucket(func(id []byte) error {
 			cb := tx.Bucket(bucketCells).Bucket(id)
 			put(id)
@@ -236,8 +243,11 @@ func (s *Store) ContentDigest() ([32]byte, error) {
 		})
 	})
 	var out [32]byte
+	if err != nil {
+		return out, err // the hash may have been cut off inside a write
+	}
 	h.Sum(out[:0])
-	return out, err
+	return out, nil
 }
 
 // TaskResult is what one finished task adds to a cell: replicates [From, From+len(Records))
@@ -256,74 +266,77 @@ type TaskResult struct {
 // nil it runs inside the same transaction, so a caller's own state (task states) commits
 // atomically with the results. Any error leaves the store unchanged.
 func (s *Store) Commit(batch []TaskResult, extra func(tx *bolt.Tx) error) error {
-	return s.db.Update(func(tx *bolt.Tx) error {
-		cells := tx.Bucket(bucketCells)
-		// Each cell's sketch is decoded once per transaction, takes every result of the
-		// batch, and is encoded once at the end: counts and exact sums do not depend on
-		// grouping, so this gives the same bytes as one merge per result.
-		type open struct {
-			cb *bolt.Bucket
-			cj []byte // the cell's settings, which every result for it must share
-			sk *Sketch
+	g := damageGuard{what: s.path}
+	return g.run(func() error { return s.db.Update(func(tx *bolt.Tx) error { return s.commit(tx, batch, extra, &g) }) })
+}
+
+func (s *Store) commit(tx *bolt.Tx, batch []TaskResult, extra func(tx *bolt.Tx) error, g *damageGuard) error {
+	cells := tx.Bucket(bucketCells)
+	// Each cell's sketch is decoded once per transaction, takes every result of the
+	// batch, and is encoded once at the end: counts and exact sums do not depend on
+	// grouping, so this gives the same bytes as one merge per result.
+	type open struct {
+		cb *bolt.Bucket
+		cj []byte // the cell's settings, which every result for it must share
+		sk *Sketch
+	}
+	touched := map[string]*open{}
+	var order []string
+	for _, r := range batch {
+		c := r.Cell.WithDefaults()
+		cj, _ := json.Marshal(c)
+		o := touched[r.CellID]
+		if o != nil && !bytes.Equal(o.cj, cj) {
+			return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
 		}
-		touched := map[string]*open{}
-		var order []string
-		for _, r := range batch {
-			c := r.Cell.WithDefaults()
-			cj, _ := json.Marshal(c)
-			o := touched[r.CellID]
-			if o != nil && !bytes.Equal(o.cj, cj) {
-				return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
-			}
-			if o == nil {
-				cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
-				if err != nil {
-					return err
-				}
-				if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
-					return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
-				}
-				if err := cb.Put([]byte("cell"), cj); err != nil {
-					return err
-				}
-				sk := NewSketch(c)
-				if raw := cb.Get([]byte("sketch")); raw != nil {
-					if sk, err = DecodeSketch(raw); err != nil {
-						return fmt.Errorf("cell %s: %w", r.CellID, err)
-					}
-				}
-				o = &open{cb: cb, cj: cj, sk: sk}
-				touched[r.CellID] = o
-				order = append(order, r.CellID)
-			}
-			if err := o.sk.AddRecords(c, r.Seed, r.From, r.Records); err != nil {
-				return fmt.Errorf("cell %s: %w", r.CellID, err)
-			}
-			if r.KeepRecords {
-				rb, err := o.cb.CreateBucketIfNotExists(keyRecords)
-				if err != nil {
-					return err
-				}
-				var buf []byte
-				for i := range r.Records {
-					buf = r.Records[i].AppendBinary(buf[:0])
-					if err := rb.Put(recordKey(r.Seed, r.Records[i].Replicate), bytes.Clone(buf)); err != nil {
-						return err
-					}
-				}
-			}
-		}
-		for _, id := range order {
-			o := touched[id]
-			if err := o.cb.Put([]byte("sketch"), o.sk.AppendBinary(nil)); err != nil {
+		if o == nil {
+			cb, err := cells.CreateBucketIfNotExists([]byte(r.CellID))
+			if err != nil {
 				return err
 			}
+			if old := cb.Get([]byte("cell")); old != nil && !bytes.Equal(old, cj) {
+				return fmt.Errorf("cell %s: settings differ from the stored cell", r.CellID)
+			}
+			if err := cb.Put([]byte("cell"), cj); err != nil {
+				return err
+			}
+			sk := NewSketch(c)
+			if raw := cb.Get([]byte("sketch")); raw != nil {
+				if sk, err = DecodeSketch(raw); err != nil {
+					return fmt.Errorf("cell %s: %w", r.CellID, err)
+				}
+			}
+			o = &open{cb: cb, cj: cj, sk: sk}
+			touched[r.CellID] = o
+			order = append(order, r.CellID)
 		}
-		if extra != nil {
-			return extra(tx)
+		if err := o.sk.AddRecords(c, r.Seed, r.From, r.Records); err != nil {
+			return fmt.Errorf("cell %s: %w", r.CellID, err)
 		}
-		return nil
-	})
+		if r.KeepRecords {
+			rb, err := o.cb.CreateBucketIfNotExists(keyRecords)
+			if err != nil {
+				return err
+			}
+			var buf []byte
+			for i := range r.Records {
+				buf = r.Records[i].AppendBinary(buf[:0])
+				if err := rb.Put(recordKey(r.Seed, r.Records[i].Replicate), bytes.Clone(buf)); err != nil {
+					return err
+				}
+			}
+		}
+	}
+	for _, id := range order {
+		o := touched[id]
+		if err := o.cb.Put([]byte("sketch"), o.sk.AppendBinary(nil)); err != nil {
+			return err
+		}
+	}
+	if extra != nil {
+		return g.callOut(func() error { return extra(tx) })
+	}
+	return nil
 }
 
 func recordKey(seed, rep uint64) []byte {
@@ -336,7 +349,7 @@ func recordKey(seed, rep uint64) []byte {
 // Cells returns the ids of the cells the store holds, in key order.
 func (s *Store) Cells() ([]string, error) {
 	var ids []string
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		return tx.Bucket(bucketCells).ForEachBucket(func(k []byte) error {
 			ids = append(ids, string(k))
 			return nil
@@ -349,7 +362,7 @@ func (s *Store) Cells() ([]string, error) {
 func (s *Store) CellSketch(id string) (engine.Cell, *Sketch, error) {
 	var c engine.Cell
 	var sk *Sketch
-	err := s.db.View(func(tx *bolt.Tx) error {
+	err := s.view(func(tx *bolt.Tx) error {
 		cb := tx.Bucket(bucketCells).Bucket([]byte(id))
 		if cb == nil {
 			return fmt.Errorf("no cell %q in the store", id)
@@ -369,30 +382,33 @@ func (s *Store) CellSketch(id string) (engine.Cell, *Sketch, error) {
 
 // Records calls fn for every stored record of a cell, in (seed, replicate) order.
 func (s *Store) Records(id string, fn func(seed uint64, r engine.Record) error) error {
-	return s.db.View(func(tx *bolt.Tx) error {
-		cb := tx.Bucket(bucketCells).Bucket([]byte(id))
-		if cb == nil {
-			return fmt.Errorf("no cell %q in the store", id)
+	g := damageGuard{what: s.path}
+	return g.run(func() error { return s.db.View(func(tx *bolt.Tx) error { return s.records(tx, id, fn, &g) }) })
+}
+
+func (s *Store) records(tx *bolt.Tx, id string, fn func(seed uint64, r engine.Record) error, g *damageGuard) error {
+	cb := tx.Bucket(bucketCells).Bucket([]byte(id))
+	if cb == nil {
+		return fmt.Errorf("no cell %q in the store", id)
+	}
+	rb := cb.Bucket(keyRecords)
+	if rb == nil {
+		return nil
+	}
+	return rb.ForEach(func(k, v []byte) error {
+		if len(k) != 16 {
+			return fmt.Errorf("cell %s: corrupt record key", id)
 		}
-		rb := cb.Bucket(keyRecords)
-		if rb == nil {
-			return nil
+		rec, rest, err := engine.DecodeRecord(v)
+		if err != nil || len(rest) != 0 {
+			return fmt.Errorf("cell %s: record %x: %w", id, k, engine.ErrCorruptRecord)
 		}
-		return rb.ForEach(func(k, v []byte) error {
-			if len(k) != 16 {
-				return fmt.Errorf("cell %s: corrupt record key", id)
-			}
-			rec, rest, err := engine.DecodeRecord(v)
-			if err != nil || len(rest) != 0 {
-				return fmt.Errorf("cell %s: record %x: %w", id, k, engine.ErrCorruptRecord)
-			}
-			if rec.Replicate != binary.BigEndian.Uint64(k[8:]) {
-				return fmt.Errorf("cell %s: record under key %x is replicate %d", id, k, rec.Replicate)
-			}
-			if err := checkFinite(&rec); err != nil {
-				return fmt.Errorf("cell %s: %w: %w", id, engine.ErrCorruptRecord, err)
-			}
-			return fn(binary.BigEndian.Uint64(k), rec)
-		})
+		if rec.Replicate != binary.BigEndian.Uint64(k[8:]) {
+			return fmt.Errorf("cell %s: record under key %x is replicate %d", id, k, rec.Replicate)
+		}
+		if err := checkFinite(&rec); err != nil {
+			return fmt.Errorf("cell %s: %w: %w", id, engine.ErrCorruptRecord, err)
+		}
+		return g.callOut(func() error { return fn(binary.BigEndian.Uint64(k), rec) })
 	})
 }
