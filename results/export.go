@@ -147,25 +147,34 @@ func writeJSONLines(w io.Writer, rows []RecordRow) error {
 	return nil
 }
 
-func joinFloats(xs []float64) string {
+// joinList writes a list column for CSV: the numbers separated by semicolons.
+func joinList[T any](xs []T, appendOne func(b []byte, x T) []byte) string {
 	b := []byte{}
 	for i, x := range xs {
 		if i > 0 {
 			b = append(b, ';')
 		}
-		b = strconv.AppendFloat(b, x, 'g', -1, 64)
+		b = appendOne(b, x)
 	}
 	return string(b)
 }
 
+func joinFloats(xs []float64) string {
+	return joinList(xs, func(b []byte, x float64) []byte { return strconv.AppendFloat(b, x, 'g', -1, 64) })
+}
+
+func joinUints(xs []uint64) string {
+	return joinList(xs, func(b []byte, x uint64) []byte { return strconv.AppendUint(b, x, 10) })
+}
+
 func writeCSV(w io.Writer, rows []RecordRow) error {
 	cw := csv.NewWriter(w)
-	cw.Write([]string{"cell", "dim", "horizon", "seed", "replicate", "population", "max_radius", "max_radius_minus_centring", "max_direction", "top_radii", "checkpoint_times", "checkpoint_z", "checkpoint_w"})
+	cw.Write([]string{"cell", "dim", "horizon", "seed", "replicate", "population", "max_radius", "max_radius_minus_centring", "max_direction", "top_radii", "checkpoint_times", "checkpoint_population", "checkpoint_z", "checkpoint_w"})
 	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
 	u := func(x uint64) string { return strconv.FormatUint(x, 10) }
 	for _, r := range rows {
 		cw.Write([]string{r.Cell, strconv.FormatInt(r.Dim, 10), f(r.Horizon), u(r.Seed), u(r.Replicate), u(r.Population),
-			f(r.MaxRadius), f(r.Shifted), joinFloats(r.MaxDir), joinFloats(r.TopRadii), joinFloats(r.CheckTimes), joinFloats(r.CheckZ), joinFloats(r.CheckW)})
+			f(r.MaxRadius), f(r.Shifted), joinFloats(r.MaxDir), joinFloats(r.TopRadii), joinFloats(r.CheckTimes), joinUints(r.CheckN), joinFloats(r.CheckZ), joinFloats(r.CheckW)})
 	}
 	cw.Flush()
 	return cw.Error()

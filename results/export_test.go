@@ -49,6 +49,25 @@ func TestExportRoundTrips(t *testing.T) {
 	if x, _ := strconv.ParseFloat(recs[3][6], 64); x != want[2].MaxRadius {
 		t.Fatalf("csv max radius %v, want %v (exact round trip)", x, want[2].MaxRadius)
 	}
+	// Every row column is there, under its JSON name.
+	jsonNames := map[string]bool{}
+	for i := range reflect.TypeFor[RecordRow]().NumField() {
+		jsonNames[reflect.TypeFor[RecordRow]().Field(i).Tag.Get("json")] = true
+	}
+	if len(recs[0]) != len(jsonNames) {
+		t.Fatalf("csv columns %v, want the %d of a row", recs[0], len(jsonNames))
+	}
+	for j, name := range recs[0] {
+		if !jsonNames[name] {
+			t.Fatalf("csv column %q is not a row column", name)
+		}
+		if name == "checkpoint_population" {
+			wantN := strconv.FormatUint(want[2].CheckN[0], 10) + ";" + strconv.FormatUint(want[2].CheckN[1], 10)
+			if recs[3][j] != wantN {
+				t.Fatalf("csv checkpoint_population %q, want %q", recs[3][j], wantN)
+			}
+		}
+	}
 	if err := st.ExportRecords(filepath.Join(dir, "x"), "xls"); err == nil {
 		t.Fatal("unknown format accepted")
 	}
