@@ -198,7 +198,7 @@ func (s *Store) ExportCells(path, format string) error {
 	if err != nil {
 		return err
 	}
-	var rows []CellRow
+	rows := []CellRow{} // an empty store exports [], not null
 	for _, id := range ids {
 		c, sk, err := s.CellSketch(id)
 		if err != nil {

@@ -1,6 +1,7 @@
 package results
 
 import (
+	"bytes"
 	"encoding/csv"
 	"encoding/json"
 	"os"
@@ -129,5 +130,29 @@ func TestExportRefusesToOverwriteAStore(t *testing.T) {
 	}
 	if left, _ := filepath.Glob(filepath.Join(dir, ".*partial")); len(left) != 0 {
 		t.Fatalf("temporary files left: %v", left)
+	}
+}
+
+// A store with no cells yet exports its cell summaries as an empty JSON array (it was
+// null, which a reader expecting a list of rows refuses) and a CSV of the header only.
+func TestExportCellsEmptyStore(t *testing.T) {
+	dir := t.TempDir()
+	st, err := Create(filepath.Join(dir, "s.db"), []byte("spec"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	out := filepath.Join(dir, "cells.json")
+	if err := st.ExportCells(out, "json"); err != nil {
+		t.Fatal(err)
+	}
+	if b, _ := os.ReadFile(out); string(b) != "[]\n" {
+		t.Fatalf("cells of an empty store as JSON: %q", b)
+	}
+	if err := st.ExportCells(filepath.Join(dir, "cells.csv"), "csv"); err != nil {
+		t.Fatal(err)
+	}
+	if b, _ := os.ReadFile(filepath.Join(dir, "cells.csv")); len(b) == 0 || b[len(b)-1] != '\n' || bytes.Count(b, []byte("\n")) != 1 {
+		t.Fatalf("cells of an empty store as CSV: %q", b)
 	}
 }
