@@ -85,11 +85,7 @@ func TestExportCellsOneReplicate(t *testing.T) {
 		t.Fatal(err)
 	}
 	defer st.Close()
-	out := filepath.Join(dir, "cells.json")
-	if err := st.ExportCells(out, "json"); err != nil {
-		t.Fatal(err)
-	}
-	b, _ := os.ReadFile(out)
+	b := exportedCells(t, st, "json")
 	var rows []CellRow
 	if err := json.Unmarshal(b, &rows); err != nil || len(rows) != 1 || rows[0].Replicates != 1 || rows[0].SEMeanShift != 0 {
 		t.Fatalf("rows %+v (%v) from %s", rows, err, b)
@@ -136,23 +132,29 @@ func TestExportRefusesToOverwriteAStore(t *testing.T) {
 // A store with no cells yet exports its cell summaries as an empty JSON array (it was
 // null, which a reader expecting a list of rows refuses) and a CSV of the header only.
 func TestExportCellsEmptyStore(t *testing.T) {
-	dir := t.TempDir()
-	st, err := Create(filepath.Join(dir, "s.db"), []byte("spec"))
+	st, err := Create(filepath.Join(t.TempDir(), "s.db"), []byte("spec"))
 	if err != nil {
 		t.Fatal(err)
 	}
 	defer st.Close()
-	out := filepath.Join(dir, "cells.json")
-	if err := st.ExportCells(out, "json"); err != nil {
-		t.Fatal(err)
-	}
-	if b, _ := os.ReadFile(out); string(b) != "[]\n" {
+	if b := exportedCells(t, st, "json"); string(b) != "[]\n" {
 		t.Fatalf("cells of an empty store as JSON: %q", b)
 	}
-	if err := st.ExportCells(filepath.Join(dir, "cells.csv"), "csv"); err != nil {
-		t.Fatal(err)
-	}
-	if b, _ := os.ReadFile(filepath.Join(dir, "cells.csv")); len(b) == 0 || b[len(b)-1] != '\n' || bytes.Count(b, []byte("\n")) != 1 {
+	if b := exportedCells(t, st, "csv"); len(b) == 0 || b[len(b)-1] != '\n' || bytes.Count(b, []byte("\n")) != 1 {
 		t.Fatalf("cells of an empty store as CSV: %q", b)
 	}
+}
+
+// exportedCells returns what ExportCells writes in format.
+func exportedCells(t *testing.T, st *Store, format string) []byte {
+	t.Helper()
+	out := filepath.Join(t.TempDir(), "cells."+format)
+	if err := st.ExportCells(out, format); err != nil {
+		t.Fatal(err)
+	}
+	b, err := os.ReadFile(out)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return b
 }
