@@ -2,6 +2,7 @@ package results
 
 import (
 	"encoding/binary"
+	"errors"
 	"fmt"
 	"io"
 	"os"
@@ -25,9 +26,14 @@ func preflight(path string) error {
 	if err != nil {
 		return err
 	}
+	if st.IsDir() {
+		return fmt.Errorf("%s is a folder, not a store file", path)
+	}
 	head := make([]byte, 80)
-	if _, err := io.ReadFull(f, head); err != nil {
+	if _, err := io.ReadFull(f, head); errors.Is(err, io.EOF) || errors.Is(err, io.ErrUnexpectedEOF) {
 		return fmt.Errorf("%s is not a readable bbmx store: too short (%d bytes)", path, st.Size())
+	} else if err != nil {
+		return fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
 	}
 	readMeta := func(b []byte) (pageSize, hwm, txid uint64, ok bool) {
 		if binary.LittleEndian.Uint32(b[16:]) != boltMagic {

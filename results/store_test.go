@@ -74,6 +74,13 @@ func TestStoreRefusesForeignAndCorruptFiles(t *testing.T) {
 	if _, err := Open(other, true); err == nil || !strings.Contains(err.Error(), "not a bbmx store") {
 		t.Errorf("foreign bbolt file: %v", err)
 	}
+	// A folder is named as one (it was reported as a store "too short (4096 bytes)").
+	if _, err := Open(dir, false); err == nil || !strings.Contains(err.Error(), "is a folder") {
+		t.Errorf("folder: %v", err)
+	}
+	if _, _, err := OpenOrCreate(dir, []byte("s")); err == nil || !strings.Contains(err.Error(), "is a folder") {
+		t.Errorf("OpenOrCreate on a folder: %v", err)
+	}
 	if _, err := Open(filepath.Join(dir, "missing.db"), true); err == nil {
 		t.Error("missing file opened")
 	}
