@@ -3,14 +3,18 @@ package worker
 import (
 	"context"
 	"crypto/tls"
+	"errors"
 	"fmt"
 	"net"
 	"strconv"
+	"sync"
 
 	"google.golang.org/grpc"
+	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/credentials"
 	"google.golang.org/grpc/credentials/insecure"
 	"google.golang.org/grpc/metadata"
+	"google.golang.org/grpc/status"
 
 	pb "bbmx/proto/bbmx/v1"
 	"bbmx/proto/link"
@@ -23,6 +27,15 @@ type TLSFiles struct {
 	CertFile, KeyFile string // client certificate, when the coordinator requires one
 	ServerName        string // name to verify in the coordinator's certificate (default: the host dialled)
 }
+
+// ErrSweepComplete is what a Resolver returns once the coordinator has said, where
+// workers find its address, that the sweep is complete: calls then fail with it and Run
+// returns as for a complete sweep.
+var ErrSweepComplete = errors.New("the sweep is complete")
+
+// Resolver says where the coordinator is now: host:port, "" while that is not known
+// (the coordinator is down and has withdrawn its address), or ErrSweepComplete.
+type Resolver func() (string, error)
 
 // CheckAddress refuses a coordinator address that is not host:port with a numeric port.
 // Checked before dialling because gRPC would otherwise take a missing port as 443 and
@@ -40,16 +53,40 @@ func CheckAddress(addr string) error {
 	return nil
 }
 
-// remote is the gRPC Client.
+// remote is the gRPC Client. With a resolver it follows a coordinator that restarts at
+// another address: after a call finds the coordinator unreachable, the next call asks
+// the resolver again and dials the new address if it changed.
 type remote struct {
+	token   string
+	opts    []grpc.DialOption
+	resolve Resolver
+
+	mu    sync.Mutex
+	addr  string
 	conn  *grpc.ClientConn
 	c     pb.CoordinatorClient
-	token string
+	stale bool               // the last call found the coordinator unreachable
+	old   []*grpc.ClientConn // replaced connections; calls may still be on them, so closed last
 }
 
 // Dial connects to a coordinator at addr (host:port). The connection is lazy:
 // unreachable coordinators show up as transient errors that Run retries.
 func Dial(addr, token string, f TLSFiles) (Client, func() error, error) {
+	return dial(addr, token, f, nil)
+}
+
+// DialFollowing is Dial for a coordinator whose address may change while the worker
+// runs, as when a batch scheduler restarts it on another node: resolve gives the first
+// address and, whenever the coordinator is unreachable, the current one.
+func DialFollowing(resolve Resolver, token string, f TLSFiles) (Client, func() error, error) {
+	addr, err := resolve()
+	if err != nil {
+		return nil, nil, err
+	}
+	return dial(addr, token, f, resolve)
+}
+
+func dial(addr, token string, f TLSFiles, resolve Resolver) (Client, func() error, error) {
 	if err := CheckAddress(addr); err != nil {
 		return nil, nil, err
 	}
@@ -74,32 +111,85 @@ func Dial(addr, token string, f TLSFiles) (Client, func() error, error) {
 		}
 		creds = credentials.NewTLS(cfg)
 	}
-	conn, err := grpc.NewClient(addr, grpc.WithTransportCredentials(creds),
-		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(link.MaxMessageBytes), grpc.MaxCallSendMsgSize(link.MaxMessageBytes)))
-	if err != nil {
-		return nil, nil, fmt.Errorf("coordinator address %q: %w", addr, err)
+	r := &remote{token: token, resolve: resolve, opts: []grpc.DialOption{grpc.WithTransportCredentials(creds),
+		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(link.MaxMessageBytes), grpc.MaxCallSendMsgSize(link.MaxMessageBytes))}}
+	if err := r.connect(addr); err != nil {
+		return nil, nil, err
 	}
-	return &remote{conn: conn, c: pb.NewCoordinatorClient(conn), token: token}, conn.Close, nil
+	return r, r.close, nil
 }
 
-func (r *remote) auth(ctx context.Context) context.Context {
-	return metadata.AppendToOutgoingContext(ctx, "authorization", "Bearer "+r.token)
+// connect dials addr and makes it the connection new calls use; r.mu is held or r is new.
+func (r *remote) connect(addr string) error {
+	conn, err := grpc.NewClient(addr, r.opts...)
+	if err != nil {
+		return fmt.Errorf("coordinator address %q: %w", addr, err)
+	}
+	if r.conn != nil {
+		r.old = append(r.old, r.conn)
+	}
+	r.addr, r.conn, r.c = addr, conn, pb.NewCoordinatorClient(conn)
+	return nil
+}
+
+func (r *remote) close() error {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	for _, c := range r.old {
+		c.Close()
+	}
+	return r.conn.Close()
+}
+
+// client returns the stub for the next call, first following the coordinator to a new
+// address if the last call could not reach it.
+func (r *remote) client() (pb.CoordinatorClient, error) {
+	r.mu.Lock()
+	defer r.mu.Unlock()
+	if r.stale && r.resolve != nil {
+		addr, err := r.resolve()
+		if err != nil {
+			return nil, err
+		}
+		// An address that does not parse is left for the next try: the file may be
+		// being rewritten.
+		if addr != "" && addr != r.addr && CheckAddress(addr) == nil {
+			if err := r.connect(addr); err != nil {
+				return nil, err
+			}
+		}
+	}
+	return r.c, nil
+}
+
+// call makes one authenticated call and notes whether the coordinator was reachable.
+func call[Q, A any](r *remote, ctx context.Context, q Q, f func(pb.CoordinatorClient, context.Context, Q, ...grpc.CallOption) (A, error)) (A, error) {
+	c, err := r.client()
+	if err != nil {
+		var zero A
+		return zero, err
+	}
+	a, err := f(c, metadata.AppendToOutgoingContext(ctx, "authorization", "Bearer "+r.token), q)
+	r.mu.Lock()
+	r.stale = status.Code(err) == codes.Unavailable
+	r.mu.Unlock()
+	return a, err
 }
 
 func (r *remote) Register(ctx context.Context, q *pb.RegisterRequest) (*pb.RegisterReply, error) {
-	return r.c.Register(r.auth(ctx), q)
+	return call(r, ctx, q, pb.CoordinatorClient.Register)
 }
 func (r *remote) Lease(ctx context.Context, q *pb.LeaseRequest) (*pb.LeaseReply, error) {
-	return r.c.Lease(r.auth(ctx), q)
+	return call(r, ctx, q, pb.CoordinatorClient.Lease)
 }
 func (r *remote) Heartbeat(ctx context.Context, q *pb.HeartbeatRequest) (*pb.HeartbeatReply, error) {
-	return r.c.Heartbeat(r.auth(ctx), q)
+	return call(r, ctx, q, pb.CoordinatorClient.Heartbeat)
 }
 func (r *remote) Submit(ctx context.Context, q *pb.SubmitRequest) (*pb.SubmitReply, error) {
-	return r.c.Submit(r.auth(ctx), q)
+	return call(r, ctx, q, pb.CoordinatorClient.Submit)
 }
 func (r *remote) Release(ctx context.Context, q *pb.ReleaseRequest) (*pb.ReleaseReply, error) {
-	return r.c.Release(r.auth(ctx), q)
+	return call(r, ctx, q, pb.CoordinatorClient.Release)
 }
 
 // Status asks a coordinator for its progress.
@@ -108,5 +198,5 @@ func Status(ctx context.Context, cl Client) (*pb.StatusReply, error) {
 	if !ok {
 		return nil, fmt.Errorf("status needs a remote coordinator")
 	}
-	return r.c.Status(r.auth(ctx), &pb.StatusRequest{})
+	return call(r, ctx, &pb.StatusRequest{}, pb.CoordinatorClient.Status)
 }

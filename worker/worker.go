@@ -121,7 +121,7 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 		return cl.Register(c, &pb.RegisterRequest{Hostname: host, Threads: uint32(opt.Threads), EngineFormat: engine.Version})
 	})
 	if err != nil {
-		if ctx.Err() != nil {
+		if ctx.Err() != nil || errors.Is(err, ErrSweepComplete) {
 			return Stats{}, nil
 		}
 		return Stats{}, err
@@ -240,6 +240,9 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 			if fatal == nil {
 				fatal = err
 			}
+		case errors.Is(err, ErrSweepComplete):
+			// The coordinator finished without this result: a copy from another
+			// worker, whose lease it took over, was accepted.
 		case err != nil:
 			log.Error("result refused", "task", t.TaskId, "error", status.Convert(err).Message())
 		case rep.Duplicate:
@@ -250,6 +253,9 @@ func Run(ctx context.Context, cl Client, opt Options) (Stats, error) {
 	}
 
 	complete := false
+	// endedElsewhere: the resolver says the sweep is complete, so the coordinator is
+	// gone and what runs here is no longer wanted.
+	endedElsewhere := false
 	retryAfter := time.Duration(0)
 loop:
 	for {
@@ -259,6 +265,11 @@ loop:
 			rep, err := retry(ctx, opt.Wait, log, "lease", func(c context.Context) (*pb.LeaseReply, error) {
 				return cl.Lease(c, &pb.LeaseRequest{WorkerId: id, MaxTasks: uint32(free)})
 			})
+			if errors.Is(err, ErrSweepComplete) {
+				complete, endedElsewhere = true, true
+				stopAll() // stops running tasks and their submissions
+				break loop
+			}
 			if err != nil {
 				if ctx.Err() == nil {
 					mu.Lock()
@@ -337,6 +348,9 @@ loop:
 	<-hbDone
 	mu.Lock()
 	defer mu.Unlock()
+	if endedElsewhere {
+		return stats, nil
+	}
 	return stats, fatal
 }
 

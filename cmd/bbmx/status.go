@@ -43,9 +43,6 @@ func runStatus(args []string, stdout, stderr io.Writer) error {
 			return err
 		}
 	} else {
-		if err := worker.CheckAddress(*cf.coordinator); err != nil {
-			return usagef("--coordinator: %v", err)
-		}
 		cl, closeFn, err := cf.dial(*cf.coordinator)
 		if err != nil {
 			return err

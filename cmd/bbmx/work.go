@@ -2,6 +2,7 @@ package main
 
 import (
 	"context"
+	"errors"
 	"flag"
 	"fmt"
 	"io"
@@ -28,7 +29,7 @@ type clientFlags struct {
 func addClientFlags(fs *flag.FlagSet) *clientFlags {
 	return &clientFlags{
 		coordinator: fs.String("coordinator", "", "coordinator address host:port"),
-		addrFile:    fs.String("address-file", "", "read the coordinator's host:port from this file (written by 'bbmx serve --address-file'; waits for it; exits 0 if it says the sweep is complete)"),
+		addrFile:    fs.String("address-file", "", "read the coordinator's host:port from this file (written by 'bbmx serve --address-file'; waits for it, reads it again whenever the coordinator is unreachable, so a coordinator restarted elsewhere is followed; exits 0 once it says the sweep is complete)"),
 		tokenFile:   fs.String("token-file", "", "file holding the shared token"),
 		ca:          fs.String("tls-ca", "", "CA certificate (PEM) that signed the coordinator's certificate: turns TLS on"),
 		cert:        fs.String("tls-cert", "", "client certificate (PEM), when the coordinator requires one"),
@@ -37,15 +38,47 @@ func addClientFlags(fs *flag.FlagSet) *clientFlags {
 	}
 }
 
-func (f *clientFlags) dial(addr string) (worker.Client, func() error, error) {
+// credentials reads the token and names the TLS files.
+func (f *clientFlags) credentials() (string, worker.TLSFiles, error) {
 	if *f.tokenFile == "" {
-		return nil, nil, usagef("--token-file is required")
+		return "", worker.TLSFiles{}, usagef("--token-file is required")
 	}
 	tok, err := coordinator.ReadToken(*f.tokenFile)
 	if err != nil {
-		return nil, nil, usagef("%v", err)
+		return "", worker.TLSFiles{}, usagef("%v", err)
 	}
-	return worker.Dial(addr, tok, worker.TLSFiles{CAFile: *f.ca, CertFile: *f.cert, KeyFile: *f.key, ServerName: *f.serverName})
+	return tok, worker.TLSFiles{CAFile: *f.ca, CertFile: *f.cert, KeyFile: *f.key, ServerName: *f.serverName}, nil
+}
+
+// dial connects to the coordinator named by --coordinator.
+func (f *clientFlags) dial(addr string) (worker.Client, func() error, error) {
+	if err := worker.CheckAddress(addr); err != nil {
+		return nil, nil, usagef("--coordinator: %v", err)
+	}
+	tok, tf, err := f.credentials()
+	if err != nil {
+		return nil, nil, err
+	}
+	return worker.Dial(addr, tok, tf)
+}
+
+// dialFollowing connects to the coordinator whose address is in the file at path, and
+// reads the file again whenever the coordinator is unreachable: a coordinator restarted
+// by a batch scheduler may listen on another node, and rewrites the file when it does.
+func (f *clientFlags) dialFollowing(path string) (worker.Client, func() error, error) {
+	tok, tf, err := f.credentials()
+	if err != nil {
+		return nil, nil, err
+	}
+	return worker.DialFollowing(func() (string, error) {
+		b, _ := os.ReadFile(path) // missing while the coordinator is down
+		switch a := strings.TrimSpace(string(b)); a {
+		case sweepCompleteMark:
+			return "", worker.ErrSweepComplete
+		default:
+			return a, nil
+		}
+	}, tok, tf)
 }
 
 // waitAddressFile waits until the coordinator has written its address.
@@ -71,7 +104,8 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("work", "(--coordinator HOST:PORT | --address-file FILE) --token-file F [--threads N]",
 		"Works for a coordinator ('bbmx serve'): leases tasks, simulates them, one per core, and sends\n"+
 			"back the results, with heartbeats that keep the leases alive. If the coordinator is not\n"+
-			"reachable yet, or restarts, it retries with backoff for up to --wait. On SIGTERM or SIGINT\n"+
+			"reachable yet, or restarts, it retries with backoff for up to --wait (with --address-file\n"+
+			"it also follows a coordinator restarted at another address). On SIGTERM or SIGINT\n"+
 			"(a batch scheduler's warning before the wall-time kill) it stops leasing, lets running tasks\n"+
 			"finish within --grace, hands back the rest and exits 0. It exits 0 when the sweep is complete.")
 	cf := addClientFlags(fs)
@@ -93,26 +127,29 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	}
 	ctx, stop := signal.NotifyContext(context.Background(), os.Interrupt, syscall.SIGTERM)
 	defer stop()
-	addr := *cf.coordinator
-	if addr == "" {
-		var err error
-		if addr, err = waitAddressFile(ctx, *cf.addrFile, *wait); err != nil {
+	var (
+		cl      worker.Client
+		closeFn func() error
+		err     error
+	)
+	if *cf.addrFile == "" {
+		cl, closeFn, err = cf.dial(*cf.coordinator)
+	} else {
+		if _, _, err := cf.credentials(); err != nil {
+			return err // a bad token file is reported before waiting for the address
+		}
+		if _, err := waitAddressFile(ctx, *cf.addrFile, *wait); err != nil {
 			if ctx.Err() != nil {
 				return nil
 			}
 			return err
 		}
-		if addr == sweepCompleteMark {
+		cl, closeFn, err = cf.dialFollowing(*cf.addrFile)
+		if errors.Is(err, worker.ErrSweepComplete) {
 			fmt.Fprintf(stdout, "worker done: %s says the sweep is already complete\n", *cf.addrFile)
 			return nil
 		}
 	}
-	if *cf.coordinator != "" {
-		if err := worker.CheckAddress(addr); err != nil {
-			return usagef("--coordinator: %v", err)
-		}
-	}
-	cl, closeFn, err := cf.dial(addr)
 	if err != nil {
 		return err
 	}
