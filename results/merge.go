@@ -110,7 +110,7 @@ func MergeStores(out string, inputs []string) error {
 				return err
 			}
 			if prev, ok := cellJSON[id]; ok && !bytes.Equal(prev, cj) {
-				return fmt.Errorf("cell %s has different settings in %s and %s (model or observables differ): refusing to merge", id, inputs[0], inputs[i])
+				return fmt.Errorf("cell %s has different settings in %s and %s (model or observables differ): refusing to merge", id, inputs[holders[id][0]], inputs[i])
 			}
 			c, sk, err := s.CellSketch(id)
 			if err != nil {

@@ -130,6 +130,14 @@ func TestMergeRefusesConflicts(t *testing.T) {
 	if err := MergeStores(filepath.Join(dir, "o2.db"), []string{a, d}); err == nil {
 		t.Fatal("different settings merged")
 	}
+	// The refusal names the two inputs that differ, not the first input given.
+	empty := filepath.Join(dir, "empty.db")
+	st, _ = Create(empty, []byte("x"))
+	st.Close()
+	err = MergeStores(filepath.Join(dir, "o3.db"), []string{empty, a, d})
+	if err == nil || !strings.Contains(err.Error(), "in "+a+" and "+d) {
+		t.Fatalf("settings refusal: %v", err)
+	}
 }
 
 // TestMergeSmallBatches: with write batches of a few records, the merge crosses many
