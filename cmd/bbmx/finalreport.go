@@ -16,7 +16,7 @@ func finalReport(st *results.Store, storePath, dir string, stdout, stderr io.Wri
 	if dir == "" {
 		dir = strings.TrimSuffix(storePath, filepath.Ext(storePath)) + "-report"
 	}
-	fmt.Fprintf(stderr, "fitting and writing the report to %s ...\n", dir)
+	fmt.Fprintf(stderr, "fitting and writing the report to %s (Ctrl-C stops it; the sweep stays stored and 'bbmx report %s --out DIR' writes it later) ...\n", dir, storePath)
 	rep, err := report.Write(st, dir, report.Options{})
 	if err != nil {
 		return fmt.Errorf("the sweep is complete and stored, but the report failed: %w (retry with 'bbmx report %s --out DIR')", err, storePath)

@@ -190,5 +190,8 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	if opt.Shards > 1 || *noReport {
 		return nil
 	}
+	// The sweep is stored and closed: Ctrl-C now simply ends the process rather than
+	// being caught and ignored while the fits run (minutes on a large store).
+	stop()
 	return finalReport(st, *storePath, *reportDir, stdout, stderr)
 }
