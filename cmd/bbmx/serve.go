@@ -76,6 +76,20 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	log := newLogger(stderr, *verbose)
+	// Listen before the store is made: a port in use or a mistyped address must not
+	// leave an empty store behind.
+	ln, err := coordinator.Listen(*listen)
+	if err != nil {
+		return fmt.Errorf("--listen: %w", err)
+	}
+	defer ln.Close()
+	var mln net.Listener
+	if *metrics != "" {
+		if mln, err = coordinator.Listen(*metrics); err != nil {
+			return fmt.Errorf("--metrics-listen: %w", err)
+		}
+		defer mln.Close()
+	}
 	st, _, err := results.OpenOrCreate(*storePath, sw.Canonical())
 	if err != nil {
 		return err
@@ -86,10 +100,6 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer co.Close()
-	ln, err := coordinator.Listen(*listen)
-	if err != nil {
-		return err
-	}
 	host, port, _ := net.SplitHostPort(ln.Addr().String())
 	if ip := net.ParseIP(host); ip != nil && !ip.IsLoopback() && tlsCfg == nil {
 		log.Warn("listening off loopback without TLS: the token travels in clear text; use --tls-cert/--tls-key")
@@ -110,15 +120,11 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	go srv.Serve(ln)
 	defer srv.Stop()
 	fmt.Fprintf(stderr, "coordinating sweep %q on %s\n", sw.Name, ln.Addr())
-	if *metrics != "" {
+	if mln != nil {
 		reg := prometheus.NewRegistry()
 		reg.MustRegister(co.Collector())
 		mux := http.NewServeMux()
 		mux.Handle("/metrics", promhttp.HandlerFor(reg, promhttp.HandlerOpts{}))
-		mln, err := coordinator.Listen(*metrics)
-		if err != nil {
-			return err
-		}
 		hs := &http.Server{Handler: mux, ReadHeaderTimeout: 10 * time.Second}
 		go hs.Serve(mln)
 		defer hs.Close()
