@@ -75,7 +75,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 			"When the sweep completes it writes a report folder and prints the headline table.\n"+
 			"Every figure from simulation is a statistical estimate.")
 	storePath := fs.String("store", "", "results store (default bbmx-data/<sweep file name>.db, or ...-shard-i-of-n.db)")
-	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each (the default is every core)")
+	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each; the default is this machine's number of cores")
 	shard := fs.String("shard", "", "compute only share i of n, written as i/n (e.g. 3/16)")
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd, or more than a week on this machine")
 	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")

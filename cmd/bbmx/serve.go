@@ -29,7 +29,9 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 			"workers ('bbmx work'), and commits every accepted result to the store. Restarting it on the\n"+
 			"same store resumes: nothing finished is redone, nothing is counted twice. It exits 0 when the\n"+
 			"sweep is complete (1 if some task failed too often and was parked: a parked task stays parked\n"+
-			"when serve is started again, until --retry-parked queues it again).\n\n"+
+			"when serve is started again, until --retry-parked queues it again). SIGTERM or Ctrl-C before\n"+
+			"then stops it cleanly with status 0: every accepted result is stored, and starting it again\n"+
+			"resumes (batch jobs that hit their wall time are meant to be resubmitted so).\n\n"+
 			"Security: it listens on loopback unless --listen names another address; every call must carry\n"+
 			"the shared token (--token-file; 'bbmx secrets init' makes one). Off loopback use TLS\n"+
 			"(--tls-cert/--tls-key) and preferably client certificates (--client-ca), and open the port\n"+

@@ -68,6 +68,9 @@ func runAudit(args []string, stdout, stderr io.Writer) error {
 		return fmt.Errorf("%d of %d re-simulated replicates differ from the store", len(rep.Mismatches), rep.Checked)
 	}
 	fmt.Fprintf(stdout, "audit passed: %d replicates re-simulated, all bit-identical\n", rep.Checked)
+	if len(rep.NoRecords) > 0 {
+		fmt.Fprintf(stdout, "not checked: %d cell(s) keep no per-replicate records (%s)\n", len(rep.NoRecords), strings.Join(rep.NoRecords, ", "))
+	}
 	return nil
 }
 

@@ -109,7 +109,7 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 			"(a batch scheduler's warning before the wall-time kill) it stops leasing, lets running tasks\n"+
 			"finish within --grace, hands back the rest and exits 0. It exits 0 when the sweep is complete.")
 	cf := addClientFlags(fs)
-	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each (the default is every core)")
+	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each; the default is this machine's number of cores")
 	grace := fs.Duration("grace", 60*time.Second, "after SIGTERM, how long running tasks may take to finish before they are handed back")
 	wait := fs.Duration("wait", 10*time.Minute, "how long to keep retrying while the coordinator is unreachable")
 	if err := parseFlags(fs, args, stderr); err != nil {
