@@ -8,6 +8,7 @@ import (
 	"net"
 	"strconv"
 	"sync"
+	"time"
 
 	"google.golang.org/grpc"
 	"google.golang.org/grpc/codes"
@@ -59,6 +60,7 @@ func CheckAddress(addr string) error {
 type remote struct {
 	token   string
 	opts    []grpc.DialOption
+	tlsCfg  *tls.Config // nil for plaintext
 	resolve Resolver
 
 	mu    sync.Mutex
@@ -91,10 +93,12 @@ func dial(addr, token string, f TLSFiles, resolve Resolver) (Client, func() erro
 		return nil, nil, err
 	}
 	var creds credentials.TransportCredentials
+	var tlsCfg *tls.Config
 	if f.CAFile == "" && f.CertFile == "" {
 		creds = insecure.NewCredentials()
 	} else {
 		cfg := &tls.Config{MinVersion: tls.VersionTLS12, ServerName: f.ServerName}
+		tlsCfg = cfg
 		if f.CAFile != "" {
 			pool, err := link.LoadCAPool(f.CAFile)
 			if err != nil {
@@ -111,7 +115,7 @@ func dial(addr, token string, f TLSFiles, resolve Resolver) (Client, func() erro
 		}
 		creds = credentials.NewTLS(cfg)
 	}
-	r := &remote{token: token, resolve: resolve, opts: []grpc.DialOption{grpc.WithTransportCredentials(creds),
+	r := &remote{token: token, resolve: resolve, tlsCfg: tlsCfg, opts: []grpc.DialOption{grpc.WithTransportCredentials(creds),
 		grpc.WithDefaultCallOptions(grpc.MaxCallRecvMsgSize(link.MaxMessageBytes), grpc.MaxCallSendMsgSize(link.MaxMessageBytes))}}
 	if err := r.connect(addr); err != nil {
 		return nil, nil, err
@@ -172,8 +176,75 @@ func call[Q, A any](r *remote, ctx context.Context, q Q, f func(pb.CoordinatorCl
 	a, err := f(c, metadata.AppendToOutgoingContext(ctx, "authorization", "Bearer "+r.token), q)
 	r.mu.Lock()
 	r.stale = status.Code(err) == codes.Unavailable
+	addr := r.addr
 	r.mu.Unlock()
+	if status.Code(err) == codes.Unavailable {
+		if perr := probeTransport(ctx, addr, r.tlsCfg); perr != nil {
+			err = perr // not a gRPC status: Run does not retry it
+		}
+	}
 	return a, err
+}
+
+// probeTransport tells a coordinator that is down from one that is up but cannot talk
+// with this worker: it speaks TLS and the worker was given no CA, or the other way
+// round, or its certificate does not verify, or it refuses the worker's client
+// certificate. gRPC reports each as Unavailable, which Run would retry for as long as
+// Wait allows (ten minutes by default) before saying anything useful. The answer comes
+// from a TLS handshake of its own over a fresh connection, read from the handshake's
+// typed errors. It returns nil when the coordinator cannot be reached (it may be
+// starting) or nothing is wrong with the transport.
+func probeTransport(ctx context.Context, addr string, cfg *tls.Config) error {
+	ctx, cancel := context.WithTimeout(ctx, 3*time.Second)
+	defer cancel()
+	var d net.Dialer
+	conn, err := d.DialContext(ctx, "tcp", addr)
+	if err != nil {
+		return nil
+	}
+	defer conn.Close()
+	if deadline, ok := ctx.Deadline(); ok {
+		conn.SetDeadline(deadline)
+	}
+	var verify *tls.CertificateVerificationError
+	var header tls.RecordHeaderError
+	if cfg == nil {
+		// A TLS server answers a ClientHello with its own; a plaintext gRPC server
+		// answers with an HTTP/2 frame (not a TLS record) or closes.
+		tc := tls.Client(conn, &tls.Config{InsecureSkipVerify: true, MinVersion: tls.VersionTLS12})
+		if err := tc.HandshakeContext(ctx); err == nil || remoteAlert(err) {
+			return fmt.Errorf("the coordinator at %s speaks TLS, and this worker was given no CA to check it with (--tls-ca)", addr)
+		}
+		return nil
+	}
+	c := cfg.Clone()
+	if c.ServerName == "" {
+		c.ServerName, _, _ = net.SplitHostPort(addr)
+	}
+	tc := tls.Client(conn, c)
+	err = tc.HandshakeContext(ctx)
+	if err == nil {
+		// Under TLS 1.3 a refused client certificate shows only after the handshake,
+		// as an alert on the first read; an accepting gRPC server sends its settings.
+		var b [1]byte
+		_, err = tc.Read(b[:])
+	}
+	switch {
+	case errors.As(err, &verify):
+		return fmt.Errorf("the coordinator at %s has a certificate this worker's CA does not verify: %v", addr, verify.Err)
+	case errors.As(err, &header):
+		return fmt.Errorf("the coordinator at %s does not speak TLS, and this worker was given TLS files: give both the same set-up", addr)
+	case remoteAlert(err):
+		return fmt.Errorf("the coordinator at %s refused this worker's TLS handshake (%v): its client certificate is missing or not signed by the coordinator's --client-ca", addr, err)
+	}
+	return nil
+}
+
+// remoteAlert reports whether err is a TLS alert sent by the other side (crypto/tls
+// returns those as a net.OpError with Op "remote error").
+func remoteAlert(err error) bool {
+	var op *net.OpError
+	return errors.As(err, &op) && op.Op == "remote error"
 }
 
 func (r *remote) Register(ctx context.Context, q *pb.RegisterRequest) (*pb.RegisterReply, error) {
