@@ -36,15 +36,26 @@ type RecordRow struct {
 
 // Rows returns every stored record of every cell as rows, in (cell, seed, replicate) order.
 func (s *Store) Rows() ([]RecordRow, error) {
+	var rows []RecordRow
+	err := s.EachRow(func(r *RecordRow) error {
+		rows = append(rows, *r)
+		return nil
+	})
+	return rows, err
+}
+
+// EachRow calls fn with every stored record of every cell as a row, in (cell, seed,
+// replicate) order, one at a time: exports of millions of replicates stream through
+// it instead of holding every row. The row and its lists are fn's to keep.
+func (s *Store) EachRow(fn func(*RecordRow) error) error {
 	ids, err := s.Cells()
 	if err != nil {
-		return nil, err
+		return err
 	}
-	var rows []RecordRow
 	for _, id := range ids {
 		c, _, err := s.CellSketch(id)
 		if err != nil {
-			return nil, err
+			return err
 		}
 		centre := c.Model.Centring(c.Horizon)
 		err = s.Records(id, func(seed uint64, r engine.Record) error {
@@ -59,38 +70,97 @@ func (s *Store) Rows() ([]RecordRow, error) {
 				row.CheckZ = append(row.CheckZ, ck.Z)
 				row.CheckW = append(row.CheckW, ck.W)
 			}
-			rows = append(rows, row)
-			return nil
+			return fn(&row)
 		})
 		if err != nil {
-			return nil, err
+			return err
 		}
 	}
-	return rows, nil
+	return nil
+}
+
+// rowWriter writes records rows to one export format, a row at a time: put each row,
+// then end.
+type rowWriter struct {
+	put func(*RecordRow) error
+	end func() error
+}
+
+// parquetRowGroup is the rows per Parquet row group: the writer holds one group in
+// memory (a few hundred bytes a row), and readers read a group at a time.
+const parquetRowGroup = 1 << 16
+
+// newRowWriter starts an export of records rows in format to w.
+func newRowWriter(format string, w io.Writer) (rowWriter, error) {
+	switch format {
+	case "parquet":
+		pw := parquet.NewGenericWriter[RecordRow](w, parquet.MaxRowsPerRowGroup(parquetRowGroup))
+		batch := make([]RecordRow, 0, 256)
+		flush := func() error {
+			_, err := pw.Write(batch)
+			batch = batch[:0]
+			return err
+		}
+		return rowWriter{
+			put: func(r *RecordRow) error {
+				if batch = append(batch, *r); len(batch) == cap(batch) {
+					return flush()
+				}
+				return nil
+			},
+			end: func() error {
+				if err := flush(); err != nil {
+					return err
+				}
+				return pw.Close()
+			},
+		}, nil
+	case "json":
+		enc := json.NewEncoder(w)
+		return rowWriter{put: func(r *RecordRow) error { return enc.Encode(r) }, end: func() error { return nil }}, nil
+	case "csv":
+		cw := csv.NewWriter(w)
+		cw.Write([]string{"cell", "dim", "horizon", "seed", "replicate", "population", "max_radius", "max_radius_minus_centring", "max_direction", "top_radii", "checkpoint_times", "checkpoint_population", "checkpoint_z", "checkpoint_w"})
+		f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
+		u := func(x uint64) string { return strconv.FormatUint(x, 10) }
+		return rowWriter{
+			put: func(r *RecordRow) error {
+				return cw.Write([]string{r.Cell, strconv.FormatInt(r.Dim, 10), f(r.Horizon), u(r.Seed), u(r.Replicate), u(r.Population),
+					f(r.MaxRadius), f(r.Shifted), joinFloats(r.MaxDir), joinFloats(r.TopRadii), joinFloats(r.CheckTimes), joinUints(r.CheckN), joinFloats(r.CheckZ), joinFloats(r.CheckW)})
+			},
+			end: func() error {
+				cw.Flush()
+				return cw.Error()
+			},
+		}, nil
+	}
+	return rowWriter{}, unknownRecordFormat(format)
+}
+
+func unknownRecordFormat(format string) error {
+	return fmt.Errorf("unknown export format %q (csv, json or parquet)", format)
 }
 
 // ExportRecords writes the store's per-replicate records to path as "csv", "json"
-// (JSON lines) or "parquet". In CSV, list columns are written as semicolon-separated numbers.
+// (JSON lines) or "parquet", streaming them (memory does not grow with the store). In
+// CSV, list columns are written as semicolon-separated numbers.
 func (s *Store) ExportRecords(path, format string) error {
-	var write func(w io.Writer, rows []RecordRow) error
-	switch format {
-	case "parquet":
-		write = func(w io.Writer, rows []RecordRow) error { return parquet.Write(w, rows) }
-	case "json":
-		write = writeJSONLines
-	case "csv":
-		write = writeCSV
-	default:
-		return fmt.Errorf("unknown export format %q (csv, json or parquet)", format)
+	if format != "csv" && format != "json" && format != "parquet" {
+		return unknownRecordFormat(format) // before anything is written
 	}
 	if err := s.checkExportTarget(path); err != nil {
 		return err
 	}
-	rows, err := s.Rows()
-	if err != nil {
-		return err
-	}
-	return replaceFile(path, func(w io.Writer) error { return write(w, rows) })
+	return replaceFile(path, func(w io.Writer) error {
+		rw, err := newRowWriter(format, w)
+		if err != nil {
+			return err
+		}
+		if err := s.EachRow(rw.put); err != nil {
+			return err
+		}
+		return rw.end()
+	})
 }
 
 // checkExportTarget refuses to write an export over the store being read or over any
@@ -137,16 +207,6 @@ func replaceFile(path string, write func(w io.Writer) error) error {
 	return nil
 }
 
-func writeJSONLines(w io.Writer, rows []RecordRow) error {
-	enc := json.NewEncoder(w)
-	for i := range rows {
-		if err := enc.Encode(&rows[i]); err != nil {
-			return err
-		}
-	}
-	return nil
-}
-
 // joinList writes a list column for CSV: the numbers separated by semicolons.
 func joinList[T any](xs []T, appendOne func(b []byte, x T) []byte) string {
 	b := []byte{}
@@ -165,19 +225,6 @@ func joinFloats(xs []float64) string {
 
 func joinUints(xs []uint64) string {
 	return joinList(xs, func(b []byte, x uint64) []byte { return strconv.AppendUint(b, x, 10) })
-}
-
-func writeCSV(w io.Writer, rows []RecordRow) error {
-	cw := csv.NewWriter(w)
-	cw.Write([]string{"cell", "dim", "horizon", "seed", "replicate", "population", "max_radius", "max_radius_minus_centring", "max_direction", "top_radii", "checkpoint_times", "checkpoint_population", "checkpoint_z", "checkpoint_w"})
-	f := func(x float64) string { return strconv.FormatFloat(x, 'g', -1, 64) }
-	u := func(x uint64) string { return strconv.FormatUint(x, 10) }
-	for _, r := range rows {
-		cw.Write([]string{r.Cell, strconv.FormatInt(r.Dim, 10), f(r.Horizon), u(r.Seed), u(r.Replicate), u(r.Population),
-			f(r.MaxRadius), f(r.Shifted), joinFloats(r.MaxDir), joinFloats(r.TopRadii), joinFloats(r.CheckTimes), joinUints(r.CheckN), joinFloats(r.CheckZ), joinFloats(r.CheckW)})
-	}
-	cw.Flush()
-	return cw.Error()
 }
 
 // CellRow is the per-cell summary written by ExportCells.
