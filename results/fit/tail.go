@@ -3,6 +3,7 @@ package fit
 import (
 	"fmt"
 	"math"
+	"math/bits"
 	"slices"
 	"sort"
 )
@@ -77,13 +78,62 @@ func TailThreshold(x []float64, frac float64) (float64, error) {
 	if !(frac > 0 && frac < 1) {
 		return 0, fmt.Errorf("fit: tail fraction %v is not in (0, 1)", frac)
 	}
-	s := slices.Clone(x)
-	sort.Float64s(s)
-	k := int(math.Ceil(frac * float64(len(s))))
-	if k >= len(s) {
-		k = len(s) - 1
+	k := int(math.Ceil(frac * float64(len(x))))
+	if k >= len(x) {
+		k = len(x) - 1
 	}
-	return s[len(s)-1-k], nil
+	// Only one order statistic is needed: selected in linear time, not sorted (the
+	// report calls this once per bootstrap resample, hundreds of times per cell).
+	return orderStat(slices.Clone(x), len(x)-1-k), nil
+}
+
+// orderStat returns the value at index i of s sorted ascending, rearranging s: Hoare's
+// selection ("Algorithm 65: Find", Communications of the ACM, 1961) with a
+// median-of-three pivot, falling back to sorting what is left when the partitions stop
+// shrinking fast enough, so the worst case stays O(n log n). s holds no NaN.
+func orderStat(s []float64, i int) float64 {
+	lo, hi := 0, len(s)-1
+	for budget := 2 * bits.Len(uint(len(s))); lo < hi; budget-- {
+		if budget == 0 {
+			sort.Float64s(s[lo : hi+1])
+			break
+		}
+		m := lo + (hi-lo)/2
+		if s[m] < s[lo] {
+			s[m], s[lo] = s[lo], s[m]
+		}
+		if s[hi] < s[lo] {
+			s[hi], s[lo] = s[lo], s[hi]
+		}
+		if s[hi] < s[m] {
+			s[hi], s[m] = s[m], s[hi]
+		}
+		pivot := s[m]
+		a, b := lo, hi
+		for a <= b {
+			for s[a] < pivot {
+				a++
+			}
+			for pivot < s[b] {
+				b--
+			}
+			if a <= b {
+				s[a], s[b] = s[b], s[a]
+				a++
+				b--
+			}
+		}
+		// Now s[lo..b] <= pivot <= s[a..hi], and everything strictly between is the pivot.
+		switch {
+		case i <= b:
+			hi = b
+		case i >= a:
+			lo = a
+		default:
+			return s[i]
+		}
+	}
+	return s[i]
 }
 
 // TailGrid returns m equally spaced levels from the threshold u up to the
