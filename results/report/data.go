@@ -2,6 +2,7 @@ package report
 
 import (
 	"fmt"
+	"slices"
 	"sort"
 
 	"bbmx/engine"
@@ -57,7 +58,8 @@ func loadCells(st *results.Store, opt Options) ([]*cellData, error) {
 		zero := zeroBin(c)
 		centre := c.Model.Centring(c.Horizon)
 		err = st.Records(id, func(_ uint64, r engine.Record) error {
-			rp := replicate{x: r.MaxRadius() - centre, dir: r.Top[0].Dir}
+			// dir is copied: it shares its backing array with every top radius's direction.
+			rp := replicate{x: r.MaxRadius() - centre, dir: slices.Clone(r.Top[0].Dir)}
 			rp.top = make([]float64, len(r.Top))
 			for i, p := range r.Top {
 				rp.top[i] = p.Radius
