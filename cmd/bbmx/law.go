@@ -111,7 +111,7 @@ func runLaw(args []string, stdout, stderr io.Writer) error {
 	tol := fs.Float64("tolerance", 1e-5, "target absolute error in probability (> 0)")
 	threads := fs.Int("threads", 0, "solves run at once (0: all CPUs)")
 	asJSON := fs.Bool("json", false, "print JSON instead of a table")
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if fs.NArg() > 0 {

@@ -33,6 +33,12 @@ func (e usageError) Error() string { return e.msg }
 
 func usagef(format string, a ...any) error { return usageError{fmt.Sprintf(format, a...)} }
 
+// helpText is a command's answer to -h or --help: its usage, which runMain prints on
+// standard output with status 0.
+type helpText string
+
+func (h helpText) Error() string { return "help requested" }
+
 func main() { os.Exit(runMain(os.Args[1:], os.Stdout, os.Stderr)) }
 
 // runMain dispatches to a subcommand and maps its error to an exit status:
@@ -48,10 +54,12 @@ func runMain(args []string, stdout, stderr io.Writer) int {
 		return 2
 	}
 	err := c.run(args[1:], stdout, stderr)
+	var help helpText
 	switch {
 	case err == nil:
 		return 0
-	case errors.Is(err, flag.ErrHelp):
+	case errors.As(err, &help):
+		fmt.Fprint(stdout, string(help)) // asked for, so on standard output: | less works
 		return 0
 	}
 	var ue usageError
@@ -90,14 +98,16 @@ func newFlagSet(name, synopsis, description string) *flag.FlagSet {
 	return fs
 }
 
-// parseFlags parses args and turns a parse failure into a usage error.
-func parseFlags(fs *flag.FlagSet, args []string, stderr io.Writer) error {
+// parseFlags parses args and turns a parse failure into a usage error, and -h or
+// --help into the command's help text (see helpText).
+func parseFlags(fs *flag.FlagSet, args []string) error {
 	fs.SetOutput(io.Discard)
 	err := fs.Parse(args)
 	if errors.Is(err, flag.ErrHelp) {
-		fs.SetOutput(stderr)
+		var b strings.Builder
+		fs.SetOutput(&b)
 		fs.Usage()
-		return flag.ErrHelp
+		return helpText(b.String())
 	}
 	if err != nil {
 		return usageError{err.Error()}

@@ -88,7 +88,7 @@ func runPlan(args []string, stdout, stderr io.Writer) error {
 	cores := fs.Int("cores", 100, "cores for the wall-time estimate")
 	asJSON := fs.Bool("json", false, "print the plan as one JSON object")
 	force := fs.Bool("force", false, "show the plan even if the cost estimate is absurd")
-	path, err := positionalArg(fs, args, stderr, "name one sweep file, e.g. bbmx plan examples/quick.toml")
+	path, err := positionalArg(fs, args, "name one sweep file, e.g. bbmx plan examples/quick.toml")
 	if err != nil {
 		return err
 	}

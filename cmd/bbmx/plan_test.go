@@ -135,3 +135,17 @@ func TestPlanFlagsAfterFile(t *testing.T) {
 		t.Fatalf("--cores 0: exit %d", code)
 	}
 }
+
+// TestHelpOnStandardOutput: every command's --help (and -h) prints its usage on standard
+// output, where it was asked for (so a pager or grep sees it), nothing on standard error,
+// and exits 0.
+func TestHelpOnStandardOutput(t *testing.T) {
+	for name := range commands {
+		for _, flagName := range []string{"--help", "-h"} {
+			code, out, errs := runCLI(t, name, flagName)
+			if code != 0 || !strings.HasPrefix(out, "Usage: bbmx "+name+" ") || errs != "" {
+				t.Errorf("%s %s: exit %d, stdout %.60q, stderr %.60q", name, flagName, code, out, errs)
+			}
+		}
+	}
+}

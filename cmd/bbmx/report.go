@@ -51,7 +51,7 @@ func runReport(args []string, stdout, stderr io.Writer) error {
 	tol := fs.Float64("law-tolerance", 1e-5, "absolute error in probability asked of the exact law, in (0, 0.01]")
 	tail := fs.Float64("tail-fraction", 0.1, "share of the largest R*_T - m_T used for the tail slope, in (0, 0.5]")
 	quiet := fs.Bool("quiet", false, "do not print progress to stderr")
-	path, err := storeArg(fs, args, stderr)
+	path, err := storeArg(fs, args)
 	if err != nil {
 		return err
 	}

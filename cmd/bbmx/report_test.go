@@ -30,7 +30,7 @@ func TestReportCommand(t *testing.T) {
 	if _, err := os.Stat(filepath.Join(out, "report.md")); err != nil {
 		t.Error(err)
 	}
-	code, _, help := runCLI(t, "report", "--help")
+	code, help, _ := runCLI(t, "report", "--help")
 	if code != 0 {
 		t.Errorf("--help: exit %d", code)
 	}

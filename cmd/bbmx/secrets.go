@@ -73,7 +73,7 @@ func runSecretsInit(args []string, stdout, stderr io.Writer) error {
 	hostsFlag := fs.String("hosts", "", "comma-separated host names or IP addresses the coordinator is reached by")
 	days := fs.Int("days", 365, "days the certificates stay valid")
 	force := fs.Bool("force", false, "overwrite files that already exist in DIR")
-	dir, err := positionalArg(fs, args, stderr, "name the directory to write the secrets into")
+	dir, err := positionalArg(fs, args, "name the directory to write the secrets into")
 	if err != nil {
 		return err
 	}

@@ -50,7 +50,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	lease := fs.Duration("lease", 2*time.Minute, "lease length; workers send heartbeats every quarter of it")
 	verbose := fs.Bool("verbose", false, "log worker registrations and other routine events")
 	retry := fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
-	path, err := positionalArg(fs, args, stderr, "name one sweep file")
+	path, err := positionalArg(fs, args, "name one sweep file")
 	if err != nil {
 		return err
 	}

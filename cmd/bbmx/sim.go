@@ -96,7 +96,7 @@ func runSim(args []string, stdout, stderr io.Writer) error {
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
 	storePath := fs.String("store", "", "also add the replicates to this store (created if absent); see bbmx show, audit, merge")
 	first := fs.Uint64("first", 0, "number of the first replicate (to add more replicates to a store)")
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if fs.NArg() > 0 {

@@ -23,7 +23,7 @@ func runStatus(args []string, stdout, stderr io.Writer) error {
 			"open with --store.")
 	storePath := fs.String("store", "", "read progress from this store")
 	cf := addClientFlags(fs)
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	switch {

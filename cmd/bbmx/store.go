@@ -23,7 +23,7 @@ func runMerge(args []string, stdout, stderr io.Writer) error {
 			"disjoint ranges are joined, identical overlaps kept once, and differing overlaps refused\n"+
 			"with a report of cell, seed and replicate. Different seeds are independent replicates.")
 	out := fs.String("out", "", "path of the merged store to create (must not exist)")
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	if *out == "" {
@@ -45,7 +45,7 @@ func runAudit(args []string, stdout, stderr io.Writer) error {
 			"for bit with the stored one. Exits 1 if any differs.")
 	sample := fs.Int("sample", 20, "replicates to re-simulate per cell")
 	seed := fs.Uint64("seed", 1, "seed of the random choice of replicates")
-	path, err := storeArg(fs, args, stderr)
+	path, err := storeArg(fs, args)
 	if err != nil {
 		return err
 	}
@@ -75,24 +75,24 @@ func runAudit(args []string, stdout, stderr io.Writer) error {
 }
 
 // storeArg parses flags that may come before or after one positional STORE argument.
-func storeArg(fs *flag.FlagSet, args []string, stderr io.Writer) (string, error) {
-	return positionalArg(fs, args, stderr, "name the store file")
+func storeArg(fs *flag.FlagSet, args []string) (string, error) {
+	return positionalArg(fs, args, "name the store file")
 }
 
 // positionalArg parses flags that may come before or after a command's one positional
 // argument (a store, a sweep file, a folder) and returns that argument; missing is the
 // error when there is none.
-func positionalArg(fs *flag.FlagSet, args []string, stderr io.Writer, missing string) (string, error) {
+func positionalArg(fs *flag.FlagSet, args []string, missing string) (string, error) {
 	var path string
 	if len(args) > 0 && !strings.HasPrefix(args[0], "-") {
 		path, args = args[0], args[1:]
 	}
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return "", err
 	}
 	if path == "" && fs.NArg() > 0 {
 		path = fs.Arg(0)
-		if err := parseFlags(fs, fs.Args()[1:], stderr); err != nil { // flags may follow it
+		if err := parseFlags(fs, fs.Args()[1:]); err != nil { // flags may follow it
 			return "", err
 		}
 	}
@@ -107,7 +107,7 @@ func positionalArg(fs *flag.FlagSet, args []string, stderr io.Writer, missing st
 
 func runShow(args []string, stdout, stderr io.Writer) error {
 	fs := newFlagSet("show", "STORE", "Prints the cells a store holds, how many replicates of which seeds, and where they came from.")
-	path, err := storeArg(fs, args, stderr)
+	path, err := storeArg(fs, args)
 	if err != nil {
 		return err
 	}
@@ -181,7 +181,7 @@ func runExport(args []string, stdout, stderr io.Writer) error {
 	format := fs.String("format", "csv", "csv, json or parquet")
 	out := fs.String("out", "", "file to write")
 	what := fs.String("what", "records", "records or cells")
-	path, err := storeArg(fs, args, stderr)
+	path, err := storeArg(fs, args)
 	if err != nil {
 		return err
 	}

@@ -112,7 +112,7 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	threads := fs.Int("threads", runtime.NumCPU(), "tasks run at once, one core each; the default is this machine's number of cores")
 	grace := fs.Duration("grace", 60*time.Second, "after SIGTERM, how long running tasks may take to finish before they are handed back")
 	wait := fs.Duration("wait", 10*time.Minute, "how long to keep retrying while the coordinator is unreachable")
-	if err := parseFlags(fs, args, stderr); err != nil {
+	if err := parseFlags(fs, args); err != nil {
 		return err
 	}
 	switch {
