@@ -13,7 +13,6 @@ import (
 // cells fit in memory.
 type replicate struct {
 	x      float64     // R*_T - m_T
-	top    []float64   // the largest radii, decreasing
 	dir    []float64   // direction of the farthest particle
 	z      []float64   // Z_s per checkpoint
 	zdir   [][]float64 // Z_s(u) on the direction grid per checkpoint (d = 2 only)
@@ -35,6 +34,49 @@ type cellData struct {
 	// median of R*_T - m_T and its standard error, set by builder.cell (NaN if it could
 	// not be estimated) for the centring fit
 	median, medianSE float64
+	// top sums up the replicates' top-K radii for the extremal-process tables as they
+	// are read, so the radii (K floats a replicate) are not kept
+	top topSums
+}
+
+// withinGrid is the number of x values, 0, 0.1, ..., 4, at which the mean number of
+// particles within x of the maximum is tabulated.
+const withinGrid = 41
+
+// topSums accumulates what the extremal-process tables need from each replicate's
+// kept radii R_(1) >= R_(2) >= ...: per k, the gaps R_(k) - R_(k+1) (count, mean and
+// sum of squared deviations, updated as in Welford, "Note on a method for calculating
+// corrected sums of squares and products", Technometrics, 1962), and per x on the grid,
+// how many replicates have each number 0..K of radii within x of their maximum.
+type topSums struct {
+	gapN          []int
+	gapMean, gapM []float64
+	within        [withinGrid][]uint64
+}
+
+// add takes one replicate's kept radii, largest first.
+func (t *topSums) add(top []float64, K int) {
+	if t.gapN == nil {
+		t.gapN, t.gapMean, t.gapM = make([]int, K), make([]float64, K), make([]float64, K)
+		for i := range t.within {
+			t.within[i] = make([]uint64, K+1)
+		}
+	}
+	for k := 1; k < len(top) && k < K; k++ {
+		g := top[k-1] - top[k]
+		t.gapN[k]++
+		d := g - t.gapMean[k]
+		t.gapMean[k] += d / float64(t.gapN[k])
+		t.gapM[k] += d * (g - t.gapMean[k])
+	}
+	for i := range t.within {
+		x := 0.1 * float64(i)
+		k := 0
+		for k < len(top) && top[k] >= top[0]-x {
+			k++
+		}
+		t.within[i][min(k, K)]++
+	}
 }
 
 // loadCells reads every cell with at least one replicate, sorted by model, then horizon.
@@ -57,13 +99,15 @@ func loadCells(st *results.Store, opt Options) ([]*cellData, error) {
 		opt.logf("reading cell %s", id)
 		zero := zeroBin(c)
 		centre := c.Model.Centring(c.Horizon)
+		var top []float64
 		err = st.Records(id, func(_ uint64, r engine.Record) error {
 			// dir is copied: it shares its backing array with every top radius's direction.
 			rp := replicate{x: r.MaxRadius() - centre, dir: slices.Clone(r.Top[0].Dir)}
-			rp.top = make([]float64, len(r.Top))
-			for i, p := range r.Top {
-				rp.top[i] = p.Radius
+			top = top[:0]
+			for _, p := range r.Top {
+				top = append(top, p.Radius)
 			}
+			cd.top.add(top, c.Observe.TopK)
 			for _, cs := range r.Checks {
 				rp.z = append(rp.z, cs.Z)
 				if c.Model.Dim == 2 {
@@ -88,7 +132,7 @@ func loadCells(st *results.Store, opt Options) ([]*cellData, error) {
 			// Records kept by some tasks only: fits on them would describe a subset, so
 			// the cell is treated as one without records.
 			opt.logf("  cell %s: records for %d of %d replicates; using the sketch only", id, n, sk.N)
-			cd.reps, cd.partial = nil, n
+			cd.reps, cd.partial, cd.top = nil, n, topSums{}
 		}
 		out = append(out, cd)
 	}

@@ -119,22 +119,18 @@ func (b *builder) extremal(c *cellData) error {
 	}
 	// Gaps between consecutive top radii.
 	K := o.TopK
+	ts := &c.top
 	gaps := Table{Name: "gaps-" + c.tag, Caption: "Gaps R_(k) - R_(k+1) between consecutive top radii of " + g,
 		Header: []string{"k", "replicates", "mean", "se"}}
 	for k := 1; k < K; k++ {
-		var xs []float64
-		for _, r := range c.reps {
-			if len(r.top) > k {
-				xs = append(xs, r.top[k-1]-r.top[k])
-			}
-		}
-		if len(xs) < 2 {
+		nk := ts.gapN[k]
+		if nk < 2 {
 			break
 		}
-		mean, se := meanSE(xs)
-		gaps.Rows = append(gaps.Rows, []string{strconv.Itoa(k), strconv.Itoa(len(xs)), ftoa(mean), ftoa(se)})
+		mean, se := ts.gapMean[k], math.Sqrt(ts.gapM[k]/float64(nk-1)/float64(nk))
+		gaps.Rows = append(gaps.Rows, []string{strconv.Itoa(k), strconv.Itoa(nk), ftoa(mean), ftoa(se)})
 		if k <= 3 {
-			b.row(b.estimate(g, fmt.Sprintf("mean gap R_(%d) - R_(%d)", k, k+1), mean, se, "mean over replicates ± z·SE", len(xs)))
+			b.row(b.estimate(g, fmt.Sprintf("mean gap R_(%d) - R_(%d)", k, k+1), mean, se, "mean over replicates ± z·SE", nk))
 		}
 	}
 	b.rep.Tables = append(b.rep.Tables, gaps)
@@ -145,21 +141,10 @@ func (b *builder) extremal(c *cellData) error {
 		" (truncated: share of replicates whose " + strconv.Itoa(K) + " kept radii all lie within x, so the mean is a lower bound)",
 		Header: []string{"x", "mean", "se", "truncated_share"}}
 	var wx, wm, wse []float64
-	for i := 0; i <= 40; i++ {
+	for i, freq := range ts.within {
 		x := 0.1 * float64(i)
-		cnt := make([]float64, len(c.reps))
-		trunc := 0
-		for ri, r := range c.reps {
-			k := 0
-			for k < len(r.top) && r.top[k] >= r.top[0]-x {
-				k++
-			}
-			cnt[ri] = float64(k)
-			if k == K {
-				trunc++
-			}
-		}
-		mean, se := meanSE(cnt)
+		mean, se := countMeanSE(freq)
+		trunc := freq[K]
 		share := float64(trunc) / float64(len(c.reps))
 		within.Rows = append(within.Rows, []string{ftoa(x), ftoa(mean), ftoa(se), ftoa(share)})
 		if trunc == 0 {
@@ -171,6 +156,25 @@ func (b *builder) extremal(c *cellData) error {
 	}
 	b.rep.Tables = append(b.rep.Tables, within)
 	return b.plotWithin(c, wx, wm, wse)
+}
+
+// countMeanSE is meanSE of a sample of small counts given as frequencies: freq[v]
+// values equal v.
+func countMeanSE(freq []uint64) (mean, se float64) {
+	var n, sum float64
+	for v, f := range freq {
+		n += float64(f)
+		sum += float64(f) * float64(v)
+	}
+	mean = sum / n
+	if n > 1 {
+		var ss float64
+		for v, f := range freq {
+			ss += float64(f) * (float64(v) - mean) * (float64(v) - mean)
+		}
+		se = math.Sqrt(ss / (n - 1) / n)
+	}
+	return mean, se
 }
 
 func ftoa(x float64) string { return strconv.FormatFloat(x, 'g', 8, 64) }

@@ -302,3 +302,58 @@ func TestTailSlopeCoverage(t *testing.T) {
 		t.Errorf("tail slope: %d of 100 bootstrap intervals miss -theta", miss)
 	}
 }
+
+// TestTopSumsMatchLists: the extremal-process sums accumulated as records are read give
+// the means and standard errors that lists of every replicate's gaps and counts give
+// through meanSE (up to rounding: Welford's update against two passes), and the same
+// truncation counts, on random top-K lists of every length from 1 to K. Deterministic.
+func TestTopSumsMatchLists(t *testing.T) {
+	const K, n = 8, 500
+	r := rand.New(rand.NewPCG(3, 4))
+	var ts topSums
+	var tops [][]float64
+	for range n {
+		top := make([]float64, 1+r.IntN(K))
+		top[0] = 10 + r.NormFloat64()
+		for k := 1; k < len(top); k++ {
+			top[k] = top[k-1] - r.ExpFloat64()*0.3
+		}
+		ts.add(top, K)
+		tops = append(tops, top)
+	}
+	near := func(a, b float64) bool { return math.Abs(a-b) <= 1e-12*math.Max(1, math.Abs(b)) }
+	for k := 1; k < K; k++ {
+		var xs []float64
+		for _, top := range tops {
+			if len(top) > k {
+				xs = append(xs, top[k-1]-top[k])
+			}
+		}
+		mean, se := meanSE(xs)
+		nk := ts.gapN[k]
+		gotSE := math.Sqrt(ts.gapM[k] / float64(nk-1) / float64(nk))
+		if nk != len(xs) || !near(ts.gapMean[k], mean) || !near(gotSE, se) {
+			t.Fatalf("gap %d: n %d mean %v se %v, lists give %d %v %v", k, nk, ts.gapMean[k], gotSE, len(xs), mean, se)
+		}
+	}
+	for i, freq := range ts.within {
+		x := 0.1 * float64(i)
+		cnt := make([]float64, len(tops))
+		trunc := 0
+		for j, top := range tops {
+			k := 0
+			for k < len(top) && top[k] >= top[0]-x {
+				k++
+			}
+			cnt[j] = float64(k)
+			if k == K {
+				trunc++
+			}
+		}
+		mean, se := meanSE(cnt)
+		gotMean, gotSE := countMeanSE(freq)
+		if !near(gotMean, mean) || !near(gotSE, se) || freq[K] != uint64(trunc) {
+			t.Fatalf("within %v: mean %v se %v truncated %d, lists give %v %v %d", x, gotMean, gotSE, freq[K], mean, se, trunc)
+		}
+	}
+}
