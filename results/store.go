@@ -58,11 +58,21 @@ func Create(path string, spec []byte) (*Store, error) {
 // takes its inputs'), with bbolt's memory map made mmapSize bytes at once when that is
 // above zero (so a store known to grow large is not remapped again and again).
 func create(path string, spec []byte, stream int, mmapSize int) (*Store, error) {
-	if _, err := os.Stat(path); err == nil {
+	// The file is made here, exclusively, before bbolt opens it: of several processes
+	// creating one store at once, exactly one gets past this, and only that one may
+	// remove the file if setting it up fails (a loser that opened the winner's store
+	// would otherwise fail to set it up and delete it).
+	f, err := os.OpenFile(path, os.O_RDWR|os.O_CREATE|os.O_EXCL, 0o644)
+	if errors.Is(err, fs.ErrExist) {
 		return nil, fmt.Errorf("%s already exists", path)
 	}
+	if err != nil {
+		return nil, fmt.Errorf("create %s: %w", path, err)
+	}
+	f.Close()
 	db, err := bolt.Open(path, 0o644, &bolt.Options{Timeout: 2 * time.Second, InitialMmapSize: mmapSize})
 	if err != nil {
+		os.Remove(path)
 		return nil, fmt.Errorf("create %s: %w", path, err)
 	}
 	sum := sha256.Sum256(spec)
