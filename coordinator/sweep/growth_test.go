@@ -121,6 +121,25 @@ func TestEstimate(t *testing.T) {
 	}
 }
 
+// A checkpoint at the horizon costs more than the walk: e^24 crossings at 1.46 µs
+// (d = 2, 16 directions) against 2e^24 nodes at 60 ns, about 12 times (derived from
+// engine.CrossingSeconds's rule). 15,000 replicates are 7.9e14 nodes, under the node
+// limit, but about 174,000 CPU-hours, ten times the limit's 16,700: absurd.
+func TestEstimateAbsurdByCheckpointCost(t *testing.T) {
+	s := mustParse(t, "seed = 1\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n[observe]\ncheckpoints = [24]\n", "cp.toml")
+	e := s.Estimate()
+	if e.Nodes > engine.AbsurdSweepNodes || e.CPUSeconds/3600 < 150000 {
+		t.Fatalf("scenario drifted: %+v", e)
+	}
+	if !e.Absurd {
+		t.Fatalf("%.0f CPU-hours is not absurd: %+v", e.CPUSeconds/3600, e)
+	}
+	// Without the checkpoint the same grid is under both limits.
+	if e := mustParse(t, "seed = 1\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n", "w.toml").Estimate(); e.Absurd {
+		t.Fatalf("without checkpoints: %+v", e)
+	}
+}
+
 func cellOf(t *testing.T, s *Sweep, id string) CellSpec {
 	t.Helper()
 	for _, c := range s.Cells() {

@@ -83,13 +83,19 @@ func (z Sizing) Tasks(replicates uint64) uint64 {
 // count of a replicate is random (its mean is Model.ExpectedNodes) and the time per node
 // is the nominal engine.NodeSeconds, not a measurement on this machine. Absurd is
 // Nodes > engine.AbsurdSweepNodes, the cluster-sized limit (engine.AbsurdNodes, the one
-// for a run on one machine, is a hundred times lower).
+// for a run on one machine, is a hundred times lower), or CPUSeconds above what that
+// many nodes cost at NominalNodeSeconds: checkpoints near the horizon can cost ten times
+// the walk (more with many directions), and a node count alone would not see it.
 func (s *Sweep) Estimate() Estimate {
 	var e Estimate
 	for _, c := range s.Cells() {
 		e.Nodes += float64(c.Replicates) * c.Cell.Model.ExpectedNodes(c.Cell.Horizon)
 		e.CPUSeconds += float64(c.Replicates) * replicateSeconds(c)
 	}
-	e.Absurd = !(e.Nodes <= engine.AbsurdSweepNodes)
+	e.Absurd = !(e.Nodes <= engine.AbsurdSweepNodes) || !(e.CPUSeconds <= AbsurdSweepSeconds)
 	return e
 }
+
+// AbsurdSweepSeconds is the CPU time above which a sweep is absurd whatever its node
+// count: engine.AbsurdSweepNodes at the nominal cost per node.
+const AbsurdSweepSeconds = engine.AbsurdSweepNodes * engine.NominalNodeSeconds
