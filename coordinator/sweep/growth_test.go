@@ -1,6 +1,8 @@
 package sweep
 
 import (
+	"errors"
+	"fmt"
 	"math"
 	"strings"
 	"testing"
@@ -114,10 +116,11 @@ func TestEstimate(t *testing.T) {
 	if got := engine.NominalReplicateSeconds(cc); math.Abs(got-wantCP) > 1e-9*wantCP || got < 5*walk {
 		t.Fatalf("with a checkpoint at 7: %v CPU-seconds per replicate, want %v", got, wantCP)
 	}
-	// A horizon of 40 at a million replicates is about 4.7e23 nodes: absurd.
-	big := mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1000000\n", "big.toml")
+	// A horizon of 40 is about 4.7e17 nodes a replicate: absurd even once (more
+	// replicates are refused by Parse for their task count, TestTooManyTasks).
+	big := mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1\n", "big.toml")
 	if !big.Estimate().Absurd {
-		t.Fatal("T = 40 × 1e6 replicates is not absurd")
+		t.Fatal("T = 40 is not absurd")
 	}
 }
 
@@ -126,7 +129,7 @@ func TestEstimate(t *testing.T) {
 // engine.CrossingSeconds's rule). 15,000 replicates are 7.9e14 nodes, under the node
 // limit, but about 174,000 CPU-hours, ten times the limit's 16,700: absurd.
 func TestEstimateAbsurdByCheckpointCost(t *testing.T) {
-	s := mustParse(t, "seed = 1\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n[observe]\ncheckpoints = [24]\n", "cp.toml")
+	s := mustParse(t, "seed = 1\ntask_seconds = 3600\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n[observe]\ncheckpoints = [24]\n", "cp.toml")
 	e := s.Estimate()
 	if e.Nodes > engine.AbsurdSweepNodes || e.CPUSeconds/3600 < 150000 {
 		t.Fatalf("scenario drifted: %+v", e)
@@ -135,7 +138,7 @@ func TestEstimateAbsurdByCheckpointCost(t *testing.T) {
 		t.Fatalf("%.0f CPU-hours is not absurd: %+v", e.CPUSeconds/3600, e)
 	}
 	// Without the checkpoint the same grid is under both limits.
-	if e := mustParse(t, "seed = 1\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n", "w.toml").Estimate(); e.Absurd {
+	if e := mustParse(t, "seed = 1\ntask_seconds = 3600\n[grid]\ndims = [2]\nhorizons = [24]\nreplicates = 15000\n", "w.toml").Estimate(); e.Absurd {
 		t.Fatalf("without checkpoints: %+v", e)
 	}
 }
@@ -208,5 +211,31 @@ func TestSizeSplitReplicates(t *testing.T) {
 	cs = cellOf(t, mustParse(t, "seed = 1\n[grid]\ndims = [1]\nhorizons = [40]\nreplicates = 1\n", "c.toml"), "d1-T40")
 	if z := s.Size(cs); z.Parts != MaxParts {
 		t.Fatalf("parts cap: %+v", z)
+	}
+}
+
+// A cheap cell of large records: d = 64, top_k = 4096 is about 2.1 MB a record, so 3
+// replicates a task (8 MiB), and a billion replicates are 333,333,334 tasks, about 2 CPU-
+// hours but far more tasks than the coordinator can hold. Refused by Parse, naming the
+// replicate count that asks for them, the default's or an override's.
+func TestTooManyTasks(t *testing.T) {
+	const grid = "seed = 1\n[grid]\ndims = [2, 64]\nhorizons = [0.01]\nreplicates = %d\n[observe]\ntop_k = 4096\n"
+	for _, c := range []struct {
+		name, file string
+		line       int
+		key        string
+	}{
+		{"default", fmt.Sprintf(grid, 1_000_000_000), 5, "grid.replicates"},
+		{"override", fmt.Sprintf(grid, 1000) + "[[grid.override]]\ndim = 2\nhorizon = 0.01\nreplicates = 5\n[[grid.override]]\ndim = 64\nhorizon = 0.01\nreplicates = 1_000_000_000\n", 15, "grid.override.replicates"},
+	} {
+		_, err := Parse([]byte(c.file), "many.toml")
+		var e *Error
+		if !errors.As(err, &e) || e.Line != c.line || e.Key != c.key || !strings.Contains(e.Msg, "cell d64-T0.01 alone into 333333334") || !strings.Contains(e.Msg, "CPU-hours") || strings.Contains(err.Error(), "\n") {
+			t.Fatalf("%s: got %v, want line %d key %s naming cell d64-T0.01 alone into 333333334 tasks", c.name, err, c.line, c.key)
+		}
+	}
+	// The same grid at a million replicates is 333,334 tasks: accepted.
+	if _, err := Parse([]byte(fmt.Sprintf(grid, 1_000_000)), "ok.toml"); err != nil {
+		t.Fatal(err)
 	}
 }

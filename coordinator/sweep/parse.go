@@ -104,7 +104,13 @@ func Parse(data []byte, name string) (*Sweep, error) {
 	if fe != nil {
 		return nil, locate(fe)
 	}
+	written := slices.Clone(s.Overrides) // normalize sorts them and drops no-ops
 	if fe := s.normalize(); fe != nil {
+		return nil, locate(fe)
+	}
+	if fe := s.checkTasks(func(d int, t float64) int {
+		return slices.IndexFunc(written, func(o Override) bool { return o.Dim == d && o.Horizon == t })
+	}); fe != nil {
 		return nil, locate(fe)
 	}
 	return s, nil

@@ -9,6 +9,13 @@ import (
 // MaxParts bounds the subtree tasks one replicate is cut into.
 const MaxParts = 65536
 
+// MaxTasks bounds the tasks of a whole sweep: the coordinator plans every task up front
+// and keeps it in memory (about 300 bytes each, so 2.4 GB at the bound), so a cheap
+// sweep with a billion replicates of large records would otherwise exhaust memory
+// before running anything. No sweep under the absurdity limit needs more, unless its
+// tasks are far below task_seconds because of their records' size.
+const MaxTasks = 8_000_000
+
 // partsOversample is how many subtrees, on average, each part of a split replicate gets:
 // the automatic split time makes the mean population at s0 this many times the number
 // of parts, so that parts even out although the subtrees' sizes vary a lot.
@@ -66,6 +73,32 @@ func (s *Sweep) Size(c CellSpec) Sizing {
 		s0 = min(s0, c.Cell.Horizon/2)
 	}
 	return Sizing{PerTask: 1, Parts: parts, SplitAt: s0}
+}
+
+// checkTasks refuses a sweep that is cut into more than MaxTasks tasks, naming the
+// replicate count of its largest cell (written as overrides[i], or the grid's default
+// when i < 0). It depends on the cost model, so only Parse runs it: a stored sweep stays
+// readable whatever a later cost model says.
+func (s *Sweep) checkTasks(overrideIndex func(d int, t float64) int) *fieldError {
+	var total, most uint64
+	var big CellSpec
+	for _, c := range s.Cells() {
+		n := s.TaskCount(c)
+		total += n // at most MaxCells × MaxReplicates × MaxParts: no overflow
+		if n > most {
+			most, big = n, c
+		}
+	}
+	if total <= MaxTasks {
+		return nil
+	}
+	key := "grid.replicates"
+	if i := overrideIndex(big.Cell.Model.Dim, big.Cell.Horizon); i >= 0 {
+		key = joinKey(indexKey("grid.override", i), "replicates")
+	}
+	e := s.Estimate()
+	return errAt(key, "the sweep is cut into %d tasks (cell %s alone into %d; about %.3g tree nodes, %.3g CPU-hours by the cost model); the coordinator holds every task in memory, at most %d: ask for fewer replicates, a longer task_seconds, or a smaller observe.top_k (a task holds at most %d MiB of records)",
+		total, big.ID, most, e.Nodes, e.CPUSeconds/3600, MaxTasks, engine.MaxTaskResultBytes>>20)
 }
 
 // TaskCount is the number of tasks the whole cell needs.
