@@ -32,6 +32,12 @@ func DefaultModel() Model { return Model{Dim: 2, Sigma: 1, Beta: 1, Children: 2}
 // maxDim is the largest dimension supported.
 const maxDim = 64
 
+// minScale and maxScale bound sigma and beta. Both are units (of space and of time), so
+// nothing is lost by rescaling into this range, while values far outside it overflow
+// radii, martingale weights or the law solver's grid (sigma = 1e100 or beta = 1e-300
+// gave infinite radii, or a report that could not be drawn or solved).
+const minScale, maxScale = 1e-6, 1e6
+
 // Validate reports the first parameter that is out of range.
 func (m Model) Validate() error {
 	switch {
@@ -41,8 +47,12 @@ func (m Model) Validate() error {
 		return fmt.Errorf("dimension %d is larger than the supported %d", m.Dim, maxDim)
 	case !(m.Sigma > 0) || math.IsInf(m.Sigma, 0):
 		return fmt.Errorf("sigma must be a positive finite number, got %v", m.Sigma)
+	case m.Sigma < minScale || m.Sigma > maxScale:
+		return fmt.Errorf("sigma %v is outside the supported [%g, %g]: measure space in other units (the process with sigma s is the one with sigma 1, scaled by s)", m.Sigma, minScale, maxScale)
 	case !(m.Beta > 0) || math.IsInf(m.Beta, 0):
 		return fmt.Errorf("branching rate beta must be a positive finite number, got %v", m.Beta)
+	case m.Beta < minScale || m.Beta > maxScale:
+		return fmt.Errorf("branching rate beta %v is outside the supported [%g, %g]: measure time in other units (the process with rate b up to time T is the one with rate 1 up to b T, space scaled by 1/sqrt(b))", m.Beta, minScale, maxScale)
 	case m.Children < 2:
 		return fmt.Errorf("children per branching must be at least 2, got %d", m.Children)
 	case m.Children > 64:

@@ -66,6 +66,8 @@ func TestSimBadInput(t *testing.T) {
 		{[]string{"--horizon", "3", "--children", "1"}, "children"},
 		{[]string{"--horizon", "3", "--sigma", "0"}, "sigma"},
 		{[]string{"--horizon", "3", "--sigma", "-2"}, "sigma"},
+		{[]string{"--horizon", "3", "--sigma", "1e100"}, "sigma 1e+100 is outside the supported"},
+		{[]string{"--horizon", "3", "--beta", "1e-300"}, "beta 1e-300 is outside the supported"},
 		{[]string{"--horizon", "3", "--replicates", "-4"}, "replicates"},
 		{[]string{"--horizon", "3", "--threads", "0"}, "threads"},
 		{[]string{"--horizon", "3", "--frobnicate"}, "frobnicate"},
