@@ -239,3 +239,24 @@ func TestTooManyTasks(t *testing.T) {
 		t.Fatal(err)
 	}
 }
+
+// TestSplitTooLate: a split_at so late that the tree above it costs more than a quarter
+// of a task is refused with the latest split_at that is not (every part walks that tree,
+// and planning counts its subtrees replicate by replicate: a split at 19 of 20 ran for
+// hours). The latest split_at it names is accepted, and so is any split_at for a cell
+// small enough not to be split. Costs derived from the cost model: a d = 2 node is 60 ns,
+// a binary replicate to time s has 2 e^s - 1 nodes, so a quarter of a 1-second task
+// allows s up to log(0.25 / 120e-9) = 14.55.
+func TestSplitTooLate(t *testing.T) {
+	const file = "seed = 1\ntask_seconds = 1\nsplit_at = %v\n[grid]\ndims = [2]\nhorizons = [%v]\nreplicates = 4\n"
+	_, err := Parse([]byte(fmt.Sprintf(file, 19, 20)), "late.toml")
+	var e *Error
+	if !errors.As(err, &e) || e.Line != 3 || e.Key != "split_at" || !strings.Contains(e.Msg, "choose split_at at most 14.5") || strings.Contains(err.Error(), "\n") {
+		t.Fatalf("got %v, want line 3 key split_at naming 14.5", err)
+	}
+	for _, ok := range []string{fmt.Sprintf(file, 14.5, 20), fmt.Sprintf(file, 4, 5)} {
+		if _, err := Parse([]byte(ok), "ok.toml"); err != nil {
+			t.Errorf("%q: %v", ok, err)
+		}
+	}
+}

@@ -113,6 +113,9 @@ func Parse(data []byte, name string) (*Sweep, error) {
 	}); fe != nil {
 		return nil, locate(fe)
 	}
+	if fe := s.checkSplit(); fe != nil {
+		return nil, locate(fe)
+	}
 	return s, nil
 }
 

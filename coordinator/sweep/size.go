@@ -101,6 +101,31 @@ func (s *Sweep) checkTasks(overrideIndex func(d int, t float64) int) *fieldError
 		total, big.ID, most, e.Nodes, e.CPUSeconds/3600, MaxTasks, engine.MaxTaskResultBytes>>20)
 }
 
+// checkSplit refuses a split_at so late that the tree above it costs more than a
+// quarter of a task: every part task walks that tree again to find its subtrees, and
+// planning walks it once per replicate to count them, so a split near the horizon made
+// planning run for hours and every part cost nearly the whole replicate. Like
+// checkTasks it depends on the cost model and only Parse runs it.
+func (s *Sweep) checkSplit() *fieldError {
+	if s.SplitAt == 0 {
+		return nil // automatic: at most T/2, with about eight subtrees a part
+	}
+	for _, c := range s.Cells() {
+		z := s.Size(c)
+		if z.Parts <= 1 {
+			continue // the cell is not split
+		}
+		m := c.Cell.Model
+		top := float64(m.ExpectedNodes(z.SplitAt) * engine.NodeSeconds(m.Dim))
+		if limit := s.TaskSeconds / 4; top > limit {
+			latest := math.Log(limit/engine.NodeSeconds(m.Dim)/(float64(m.Children)/float64(m.Children-1))) / m.Growth()
+			return errAt("split_at", "split_at %v is too late for cell %s: each of its %d parts first walks the tree above the split, about %.3g nodes (%.3g s by the cost model), more than a quarter of task_seconds %v; choose split_at at most %.3g, or 0 for automatic",
+				s.SplitAt, c.ID, z.Parts, m.ExpectedNodes(z.SplitAt), top, s.TaskSeconds, math.Max(latest, 0))
+		}
+	}
+	return nil
+}
+
 // TaskCount is the number of tasks the whole cell needs.
 func (s *Sweep) TaskCount(c CellSpec) uint64 { return s.Size(c).Tasks(c.Replicates) }
 
