@@ -184,14 +184,11 @@ func deleteStoredParts(tx *bolt.Tx, id string, rep uint64, from *uint64) error {
 // putStatesLocked writes the persisted state of tasks that are no longer done: no done
 // digest, their failures, parking and their replicate's assembly failures.
 func (c *Coordinator) putStatesLocked(tx *bolt.Tx, ts []*task) error {
-	done, err := coordBucket(tx, keyDone)
+	bs, err := coordBuckets(tx, keyDone, keyTasks)
 	if err != nil {
 		return err
 	}
-	tasks, err := coordBucket(tx, keyTasks)
-	if err != nil {
-		return err
-	}
+	done, tasks := bs[0], bs[1]
 	for _, s := range ts {
 		if err := done.Delete([]byte(s.id)); err != nil {
 			return err

@@ -237,18 +237,11 @@ func (c *Coordinator) commitBatch(batch []*commitReq) error {
 		trs = coalesce(trs)
 	}
 	return c.store.Commit(trs, func(tx *bolt.Tx) error {
-		done, err := coordBucket(tx, keyDone)
+		bs, err := coordBuckets(tx, keyDone, keyTasks, keyParts)
 		if err != nil {
 			return err
 		}
-		tasks, err := coordBucket(tx, keyTasks)
-		if err != nil {
-			return err
-		}
-		parts, err := coordBucket(tx, keyParts)
-		if err != nil {
-			return err
-		}
+		done, tasks, parts := bs[0], bs[1], bs[2]
 		for _, cr := range batch {
 			t := cr.task
 			if err := done.Put([]byte(t.id), cr.digest[:]); err != nil {

@@ -605,6 +605,19 @@ func coordBucket(tx *bolt.Tx, name []byte) (*bolt.Bucket, error) {
 	return cb.CreateBucketIfNotExists(name)
 }
 
+// coordBuckets is coordBucket for several names, in their order.
+func coordBuckets(tx *bolt.Tx, names ...[]byte) ([]*bolt.Bucket, error) {
+	bs := make([]*bolt.Bucket, len(names))
+	for i, name := range names {
+		b, err := coordBucket(tx, name)
+		if err != nil {
+			return nil, err
+		}
+		bs[i] = b
+	}
+	return bs, nil
+}
+
 // clock expires leases whose deadline passed.
 func (c *Coordinator) clock() {
 	defer c.wg.Done()
