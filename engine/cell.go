@@ -53,7 +53,7 @@ func (c Cell) Validate() error {
 		return fmt.Errorf("histogram window must be positive, got %v", o.Window)
 	case !(o.BinWidth > 0) || math.IsInf(o.BinWidth, 0):
 		return fmt.Errorf("histogram bin width must be a positive finite number, got %v", o.BinWidth)
-	case 2*o.Window/o.BinWidth > MaxBins:
+	case o.Window/o.BinWidth > MaxBins/2: // 2 w / b, without overflow for huge w
 		return fmt.Errorf("histogram of window %v and bin %v has more than %d bins", o.Window, o.BinWidth, MaxBins)
 	case len(o.Checkpoints) > MaxCheckpoints:
 		return fmt.Errorf("at most %d checkpoints, got %d", MaxCheckpoints, len(o.Checkpoints))

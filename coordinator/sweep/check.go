@@ -117,11 +117,20 @@ func (s *Sweep) checkObserve() *fieldError {
 	if fe := check("observe.top_k", func(b *engine.Observe) { b.TopK = o.TopK }); fe != nil {
 		return fe
 	}
-	// The window alone (one bin), the bin width alone, then both (the number of bins).
-	if fe := check("observe.window", func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, 2*o.Window }); fe != nil {
+	// The window alone (two bins), the bin width alone (with the default window), then
+	// both (the number of bins), blamed on the bin width only if it is not the default:
+	// a window too wide for the default bin is the window's fault.
+	if fe := check("observe.window", func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, o.Window }); fe != nil {
 		return fe
 	}
-	if fe := check("observe.bin_width", func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, o.BinWidth }); fe != nil {
+	if fe := check("observe.bin_width", func(b *engine.Observe) { b.BinWidth = o.BinWidth }); fe != nil {
+		return fe
+	}
+	both := "observe.bin_width"
+	if o.BinWidth == engine.DefaultObserve().BinWidth {
+		both = "observe.window"
+	}
+	if fe := check(both, func(b *engine.Observe) { b.Window, b.BinWidth = o.Window, o.BinWidth }); fe != nil {
 		return fe
 	}
 	if fe := check("observe.directions", func(b *engine.Observe) { b.Directions = o.Directions }); fe != nil {

@@ -131,6 +131,8 @@ func TestParseErrors(t *testing.T) {
 		{"window negative", with(t, "", "window", `window = -8`), 24, "observe.window", "window must be positive"},
 		{"bin width zero", with(t, "", "bin_width", `bin_width = 0`), 25, "observe.bin_width", "bin width must be"},
 		{"too many bins", with(t, "", "bin_width", `bin_width = 0.0001`), 25, "observe.bin_width", "more than 65536 bins"},
+		{"window too wide for the default bin", with(t, "", "window", `window = 1e6`), 24, "observe.window", "histogram of window 1e+06 and bin 0.05 has more than 65536 bins"},
+		{"window huge", with(t, "", "window", `window = 1e308`), 24, "observe.window", "histogram of window 1e+308 and bin 0.05 has more than 65536 bins"},
 		{"checkpoint negative", with(t, "", "checkpoints", `checkpoints = [-1, 2]`), 26, "observe.checkpoints", "positive finite"},
 		{"duplicate checkpoints", with(t, "", "checkpoints", `checkpoints = [1, 2, 1.0]`), 26, "observe.checkpoints", "checkpoint 1 is listed twice"},
 		{"directions zero", with(t, "", "directions", `directions = 0`), 27, "observe.directions", "between 1 and 4096"},
