@@ -65,11 +65,7 @@ func (f *clientFlags) dial(addr string) (worker.Client, func() error, error) {
 // dialFollowing connects to the coordinator whose address is in the file at path, and
 // reads the file again whenever the coordinator is unreachable: a coordinator restarted
 // by a batch scheduler may listen on another node, and rewrites the file when it does.
-func (f *clientFlags) dialFollowing(path string) (worker.Client, func() error, error) {
-	tok, tf, err := f.credentials()
-	if err != nil {
-		return nil, nil, err
-	}
+func dialFollowing(path, tok string, tf worker.TLSFiles) (worker.Client, func() error, error) {
 	return worker.DialFollowing(func() (string, error) {
 		b, _ := os.ReadFile(path) // missing while the coordinator is down
 		switch a := strings.TrimSpace(string(b)); a {
@@ -135,7 +131,9 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	if *cf.addrFile == "" {
 		cl, closeFn, err = cf.dial(*cf.coordinator)
 	} else {
-		if _, _, err := cf.credentials(); err != nil {
+		var tok string
+		var tf worker.TLSFiles
+		if tok, tf, err = cf.credentials(); err != nil {
 			return err // a bad token file is reported before waiting for the address
 		}
 		if _, err := waitAddressFile(ctx, *cf.addrFile, *wait); err != nil {
@@ -144,7 +142,7 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 			}
 			return err
 		}
-		cl, closeFn, err = cf.dialFollowing(*cf.addrFile)
+		cl, closeFn, err = dialFollowing(*cf.addrFile, tok, tf)
 		if errors.Is(err, worker.ErrSweepComplete) {
 			fmt.Fprintf(stdout, "worker done: %s says the sweep is already complete\n", *cf.addrFile)
 			return nil
