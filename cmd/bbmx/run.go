@@ -81,7 +81,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	reportDir := fs.String("report", "", "folder for the report when the sweep completes (default: beside the store)")
 	noReport := fs.Bool("no-report", false, "do not write a report at the end")
 	verbose := fs.Bool("verbose", false, "log every lease and commit event")
-	retry := fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
+	retry := retryParkedFlag(fs)
 	path, err := positionalArg(fs, args, "name one sweep file, e.g. bbmx run examples/quick.toml")
 	if err != nil {
 		return err

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"errors"
+	"flag"
 	"fmt"
 	"io"
 	"net"
@@ -49,7 +50,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 	force := fs.Bool("force", false, "run even if the cost estimate is absurd")
 	lease := fs.Duration("lease", 2*time.Minute, "lease length; workers send heartbeats every quarter of it")
 	verbose := fs.Bool("verbose", false, "log worker registrations and other routine events")
-	retry := fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
+	retry := retryParkedFlag(fs)
 	path, err := positionalArg(fs, args, "name one sweep file")
 	if err != nil {
 		return err
@@ -181,6 +182,11 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return errors.New("some tasks were parked after repeated failures (see above); fix the cause, then serve again with --retry-parked")
 	}
 	return nil
+}
+
+// retryParkedFlag is --retry-parked, for the commands that run a coordinator.
+func retryParkedFlag(fs *flag.FlagSet) *bool {
+	return fs.Bool("retry-parked", false, "queue the tasks an earlier run parked after repeated failures again (once the cause is fixed)")
 }
 
 // sweepCompleteMark replaces the address in --address-file once the sweep is complete.
