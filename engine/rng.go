@@ -103,15 +103,50 @@ const normal2Gamma = 0xb47c73972972b7b6
 // zigNormal is the ziggurat's fast path on word u: the normal and whether it stands;
 // if not, the draw is normSlow(u) instead.
 func zigNormal(u uint64) (float64, bool) {
-	j, s := int32(u), u>>32&0x7F
-	return float64(j) * float64(zigWn[s]), absInt32(j) < zigKn[s]
+	j, s := int32(u), &zigN[u>>32&0x7F]
+	return float64(j) * s.w, s.holds(int64(j))
 }
 
 // zigExp is the ziggurat's fast path for the exponential on word u: the value and
 // whether it stands; if not, the draw is expSlow(u) instead.
 func zigExp(u uint64) (float64, bool) {
-	j, i := uint32(u), uint8(u>>32)
-	return float64(j) * float64(zigWe[i]), j < zigKe[i]
+	j, s := uint32(u), &zigE[uint8(u>>32)]
+	return float64(j) * s.w, s.holds(int64(j))
+}
+
+// zigStrip is one strip of a ziggurat's fast path as zigNormal and zigExp read it: the
+// strip's width as a float64 (the float32 table's value, exactly), and its bound k as a
+// range [-off, n-off) for one comparison. A normal's draw stands when |j| < k, that is
+// when j + k - 1, taken unsigned, is below 2k - 1 (off = k - 1, n = 2k - 1; a strip
+// with k = 0 has off = n = 0, so no draw stands); an exponential's when j < k (off = 0,
+// n = k).
+type zigStrip struct {
+	w      float64
+	off, n uint32
+}
+
+// holds is whether the fast path's draw with integer part j stands.
+func (s *zigStrip) holds(j int64) bool { return uint64(j+int64(s.off)) < uint64(s.n) }
+
+// zigN and zigE are the normal's and the exponential's strips, from the tables of
+// ziggurat_tables.go.
+var zigN, zigE = normalStrips(), expStrips()
+
+func normalStrips() (t [128]zigStrip) {
+	for i := range t {
+		t[i] = zigStrip{w: float64(zigWn[i])}
+		if k := zigKn[i]; k > 0 { // k < 2^31, so 2k - 1 fits
+			t[i].off, t[i].n = k-1, 2*k-1
+		}
+	}
+	return t
+}
+
+func expStrips() (t [256]zigStrip) {
+	for i := range t {
+		t[i] = zigStrip{w: float64(zigWe[i]), n: zigKe[i]}
+	}
+	return t
 }
 
 // expFromWord is the standard exponential whose ziggurat fast path reads u; the rare

@@ -126,3 +126,37 @@ func TestNodeWordsLookIndependent(t *testing.T) {
 		}
 	}
 }
+
+// TestZigStrips: the fast paths' one-comparison tests (zigStrip.holds) agree with the
+// tables' own, |j| < kn[i] for the normal and j < ke[i] for the exponential, at every
+// strip, for the integer parts at and next to each bound and at the extremes.
+func TestZigStrips(t *testing.T) {
+	for i, k := range zigKn {
+		s := &zigN[i]
+		if s.w != float64(zigWn[i]) {
+			t.Fatalf("normal strip %d: width %v, table %v", i, s.w, zigWn[i])
+		}
+		for _, j := range []int64{0, 1, -1, int64(k) - 1, int64(k), int64(k) + 1, -int64(k) + 1, -int64(k), -int64(k) - 1, math.MaxInt32, math.MinInt32} {
+			if j < math.MinInt32 || j > math.MaxInt32 {
+				continue
+			}
+			if got, want := s.holds(j), absInt32(int32(j)) < k; got != want {
+				t.Fatalf("normal strip %d (k = %d), j = %d: holds %v, want %v", i, k, j, got, want)
+			}
+		}
+	}
+	for i, k := range zigKe {
+		s := &zigE[i]
+		if s.w != float64(zigWe[i]) {
+			t.Fatalf("exponential strip %d: width %v, table %v", i, s.w, zigWe[i])
+		}
+		for _, j := range []int64{0, 1, int64(k) - 1, int64(k), int64(k) + 1, math.MaxUint32} {
+			if j < 0 || j > math.MaxUint32 {
+				continue
+			}
+			if got, want := s.holds(j), uint32(j) < k; got != want {
+				t.Fatalf("exponential strip %d (k = %d), j = %d: holds %v, want %v", i, k, j, got, want)
+			}
+		}
+	}
+}

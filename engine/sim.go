@@ -18,9 +18,7 @@ type walker struct {
 	beta    float64
 	k       int
 	horizon float64
-	centre  float64 // m_T
-	hist0   float64 // -Window: left edge of the histogram
-	invBin  float64
+	bins    histBins
 	nBins   int
 	checks  []float64
 	dirs    []float64 // flat grid of unit vectors
@@ -34,7 +32,7 @@ type walker struct {
 	nNorm  uint64
 	rng    nodeRand
 	levels [][]float64 // position buffers, one per tree depth
-	// general makes subtree use node in every dimension (for tests of wave3)
+	// general makes subtree use node in every dimension (for tests of wave)
 	general bool
 	part    *Part
 	// split bookkeeping
@@ -43,10 +41,9 @@ type walker struct {
 	rootIndex uint64 // depth-first index of the next particle alive at splitAt
 	prefix    bool   // whether this part takes contributions of nodes dead before splitAt
 	// hist is the part's histogram with an underflow slot in front (hist[1:] is the
-	// part's); lastBin is the last bin's index as a float; topFloor is the smallest kept
-	// top-K radius once K are kept (-Inf before): the least radius worth offering
+	// part's) (slots from bins.slot); topFloor is the smallest kept top-K radius once K
+	// are kept (-Inf before): the least radius worth offering
 	hist     []uint64
-	lastBin  float64
 	topFloor float64
 	// invBeta = 1/beta, used instead of dividing when that gives the same bits (beta a
 	// power of two, so 1/beta is exact)
@@ -58,10 +55,9 @@ type walker struct {
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
 	// checkpoint to cut its path at
 	lastCheck float64
-	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
-	// walks
-	stack   []brood
-	leafBuf []vec
+	// stack and bufs are wave's pending broods and working arrays, kept between walks
+	stack []brood
+	bufs  *waveBufs
 }
 
 func newWalker(c Cell) *walker {
@@ -69,7 +65,7 @@ func newWalker(c Cell) *walker {
 	m := c.Model
 	w := &walker{
 		c: c, d: m.Dim, sigma: m.Sigma, beta: m.Beta, k: m.Children, horizon: c.Horizon,
-		centre: m.Centring(c.Horizon), hist0: -c.Observe.Window, invBin: 1 / c.Observe.BinWidth,
+		bins:  histBins{centre: m.Centring(c.Horizon), hist0: -c.Observe.Window, invBin: 1 / c.Observe.BinWidth},
 		nBins: c.Bins(), checks: c.Observe.Checkpoints, nDirs: c.NumDirections(),
 		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda,
 	}
@@ -81,7 +77,7 @@ func newWalker(c Cell) *walker {
 	if frac, _ := math.Frexp(m.Beta); frac == 0.5 {
 		w.invBeta, w.invBetaExact = 1/m.Beta, true
 	}
-	w.lastBin = float64(w.nBins - 1)
+	w.bins.lastBin = float64(w.nBins - 1)
 	g := m.Growth()
 	for _, s := range w.checks {
 		w.zScale = append(w.zScale, -2*g*s)
@@ -233,17 +229,24 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 }
 
 // subtree walks the full subtree of the node with key k, born at birth at position pos
-// (w.level(depth)): in batches with wave3 in up to three dimensions, else depth first
+// (w.level(depth)): in batches with wave in up to three dimensions, else depth first
 // with node.
 func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 	if w.d > 3 || w.general {
 		w.node(k, birth, pos, depth)
 		return
 	}
-	w.wave3(k, birth, vecOf(pos))
+	switch p := vecOf(pos); w.d {
+	case 1:
+		wave[[1]struct{}](w, k, birth, p)
+	case 2:
+		wave[[2]struct{}](w, k, birth, p)
+	default:
+		wave[[3]struct{}](w, k, birth, p)
+	}
 }
 
-// vec is a position in at most three dimensions, the unused coordinates 0. wave3 carries
+// vec is a position in at most three dimensions, the unused coordinates 0. wave carries
 // positions in these rather than in slices: the compiler keeps them in registers, and
 // the code has no bounds checks and no loops over the coordinates.
 type vec struct{ x, y, z float64 }
@@ -264,7 +267,7 @@ func vecOf(s []float64) vec {
 // coords is v's first d coordinates.
 func (v vec) coords(d int) []float64 { return []float64{v.x, v.y, v.z}[:d] }
 
-// advance3 is advance for wave3: the position at time until of the node with key k,
+// advance3 is advance for wave: the position at time until of the node with key k,
 // born at birth at p, cut at the checkpoints in between. w.rng must be the node's
 // generator as it stands after the node's lifetime's draw.
 func (w *walker) advance3(k key, birth, until float64, p vec) vec {
@@ -456,11 +459,20 @@ func (w *walker) offer(r float64, x []float64) {
 }
 
 // count adds a leaf at radius r to the histogram, left of it to the underflow slot.
-// Most leaves of a large tree lie far inside, so leaves fall left and right of the
-// histogram's edge at random: the slot is chosen from b's sign bit without a branch (b is
-// never -0 or NaN: r is finite and r - centre - hist0 is +0 when it is zero).
-func (w *walker) count(r float64) {
-	b := min((r-w.centre-w.hist0)*w.invBin, w.lastBin)
+func (w *walker) count(r float64) { w.hist[w.bins.slot(r)]++ }
+
+// histBins places radii in the histogram of R - m_T on [hist0, ∞): centre is m_T, hist0
+// is -Window (the left edge), invBin is 1/BinWidth and lastBin the last bin's index, as
+// a float.
+type histBins struct{ centre, hist0, invBin, lastBin float64 }
+
+// slot is the slot of w.hist that radius r is counted in: 1 + its bin (the last bin takes
+// all larger radii), or 0, the underflow slot, left of the histogram. Most leaves of a
+// large tree lie far inside, so leaves fall left and right of the histogram's edge at
+// random: the slot is chosen from b's sign bit without a branch (b is never -0 or NaN: r
+// is finite and r - centre - hist0 is +0 when it is zero).
+func (h histBins) slot(r float64) int {
+	b := min((r-h.centre-h.hist0)*h.invBin, h.lastBin)
 	inside := int(math.Float64bits(b)>>63) - 1 // 0 if b < 0, else all ones
-	w.hist[(int(b)+1)&inside]++
+	return (int(b) + 1) & inside
 }
