@@ -221,6 +221,9 @@ func (c *Coordinator) drainCommits() {
 // outcome.
 func (c *Coordinator) commitAndReply(batch []*commitReq) {
 	err := c.commitBatch(batch)
+	if err != nil {
+		c.storeFailed(err)
+	}
 	for _, cr := range batch {
 		cr.done <- err
 	}

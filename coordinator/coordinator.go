@@ -29,6 +29,9 @@
 //     MaxFailures such drops of one replicate (counted across restarts) its part tasks
 //     are parked, so a fault that recurs cannot loop forever.
 //   - A reply to Submit is sent only after the result is durable.
+//   - The store is verified before planning (results.Store.Verify), and a failed commit
+//     stops the sweep (Err): nothing is leased after it, since the task would only be
+//     computed again and fail the same way.
 //   - A heartbeat naming a pending task adopts it for its worker (the worker kept
 //     computing across a coordinator restart or a late heartbeat), unless that worker
 //     handed the task back itself.
@@ -112,6 +115,7 @@ type Coordinator struct {
 	workers  map[string]time.Time
 	nDone    int
 	nParked  int
+	broken   error // why the store can no longer be written (see Err); nil while it can
 	stats    counters
 	changed  chan struct{} // closed and replaced whenever the state changes
 	commits  chan *commitReq
@@ -142,6 +146,11 @@ func Open(st *results.Store, sw *sweep.Sweep, opt Options) (*Coordinator, error)
 	}
 	if opt.Shards > 1 && (opt.Shard < 0 || opt.Shard >= opt.Shards) {
 		return nil, fmt.Errorf("shard %d is outside 0..%d", opt.Shard, opt.Shards-1)
+	}
+	// Its own transactions below read the store unguarded: damage found now is an
+	// error, not a crash or a commit that fails after minutes of simulation.
+	if err := st.Verify(); err != nil {
+		return nil, err
 	}
 	if err := st.CheckStream(); err != nil {
 		return nil, err
@@ -396,10 +405,16 @@ func (c *Coordinator) Finished() (finished bool, parked int) {
 
 func (c *Coordinator) finishedLocked() bool { return c.nDone+c.nParked == len(c.byID) }
 
-// Wait blocks until the sweep is finished (every task done or parked) or ctx ends.
+// Wait blocks until the sweep is finished (every task done or parked), the store fails
+// (Err), or ctx ends.
 func (c *Coordinator) Wait(ctx context.Context) error {
 	for {
 		c.mu.Lock()
+		if c.broken != nil {
+			err := c.broken
+			c.mu.Unlock()
+			return err
+		}
 		if c.finishedLocked() {
 			c.mu.Unlock()
 			return nil
@@ -411,6 +426,27 @@ func (c *Coordinator) Wait(ctx context.Context) error {
 		case <-ctx.Done():
 			return ctx.Err()
 		}
+	}
+}
+
+// Err is why the coordinator stopped handing out work, or nil: a commit to the store
+// failed (a damaged store, a full disk, a read-only file). Every result committed before
+// is kept; the sweep resumes once the cause is fixed. Retrying would only compute the
+// same results again and fail the same way.
+func (c *Coordinator) Err() error {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	return c.broken
+}
+
+// storeFailed records the first failed commit (see Err).
+func (c *Coordinator) storeFailed(err error) {
+	c.mu.Lock()
+	defer c.mu.Unlock()
+	if c.broken == nil {
+		c.broken = fmt.Errorf("writing to the store %s failed (%v): every result committed before is kept; fix the cause (or restore the store from a copy) and run again to resume", c.store.Path(), err)
+		c.log.Error("store failed: no more work is handed out", "error", err)
+		c.notify()
 	}
 }
 
@@ -445,6 +481,9 @@ func (c *Coordinator) Lease(ctx context.Context, req *pb.LeaseRequest) (*pb.Leas
 	deadline := now.Add(c.opt.Lease).UnixMilli()
 	c.mu.Lock()
 	defer c.mu.Unlock()
+	if c.broken != nil {
+		return nil, status.Error(codes.FailedPrecondition, c.broken.Error())
+	}
 	c.workers[req.WorkerId] = now
 	rep := &pb.LeaseReply{}
 	for len(rep.Tasks) < n && len(c.queue) > 0 {

@@ -4,9 +4,11 @@ import (
 	"bytes"
 	"context"
 	"path/filepath"
+	"strings"
 	"testing"
 	"time"
 
+	bolt "go.etcd.io/bbolt"
 	"google.golang.org/grpc/codes"
 	"google.golang.org/grpc/status"
 
@@ -570,5 +572,64 @@ func TestRetryParked(t *testing.T) {
 	}
 	if got != reference(t, sw) {
 		t.Fatal("the store after the retry differs from a direct run's")
+	}
+}
+
+// A commit that fails (here a store whose cell entry is a plain value where a bucket
+// belongs, as a damaged page makes it) stops the sweep with an error naming the store:
+// no more work is leased, Wait returns the error, and the workers stop. Before, the
+// result was refused, its task queued again, recomputed and refused again, forever.
+// What was committed before the failure stays.
+func TestStoreFailureStopsTheSweep(t *testing.T) {
+	sw := mustSweep(t, testSweep)
+	st := newStore(t, sw)
+	co, err := Open(st, sw, Options{PerTask: 20})
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer co.Close()
+	ctx := context.Background()
+	reg, _ := co.Register(ctx, &pb.RegisterRequest{EngineFormat: engine.Version})
+	lease, err := co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 100})
+	if err != nil {
+		t.Fatal(err)
+	}
+	first, second := lease.Tasks[0], lease.Tasks[len(lease.Tasks)-1]
+	if first.CellId == second.CellId {
+		t.Fatal("want tasks of two cells")
+	}
+	if rep := submit(t, co, reg.WorkerId, first); !rep.Accepted {
+		t.Fatalf("first result: %v", rep)
+	}
+	bad := second.CellId
+	if err := st.Update(func(tx *bolt.Tx) error {
+		cells := tx.Bucket([]byte("cells"))
+		if cells.Bucket([]byte(bad)) != nil {
+			if err := cells.DeleteBucket([]byte(bad)); err != nil {
+				return err
+			}
+		}
+		return cells.Put([]byte(bad), []byte("not a bucket"))
+	}); err != nil {
+		t.Fatal(err)
+	}
+	_, err = co.Submit(ctx, computeTask(t, second))
+	if status.Code(err) != codes.Internal {
+		t.Fatalf("submit to a failing store: %v", err)
+	}
+	if _, err := co.Lease(ctx, &pb.LeaseRequest{WorkerId: reg.WorkerId, MaxTasks: 1}); status.Code(err) != codes.FailedPrecondition ||
+		!strings.Contains(err.Error(), st.Path()) {
+		t.Fatalf("lease after the store failed: %v", err)
+	}
+	wctx, cancel := context.WithTimeout(ctx, 10*time.Second)
+	defer cancel()
+	if err := co.Wait(wctx); err == nil || co.Err() == nil || !strings.Contains(err.Error(), "writing to the store") {
+		t.Fatalf("Wait: %v, Err: %v", err, co.Err())
+	}
+	if _, err := worker.Run(wctx, co, worker.Options{Threads: 2}); status.Code(err) != codes.FailedPrecondition {
+		t.Fatalf("a worker against the stopped coordinator: %v", err)
+	}
+	if got := co.StatusNow().Completions; got != 1 {
+		t.Fatalf("%d tasks done, want the one committed before the failure", got)
 	}
 }

@@ -161,6 +161,9 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	close(stopView)
 	<-viewDone
 	wall := time.Since(start)
+	if err := co.Err(); err != nil {
+		return err // the workers stopped because the coordinator refused them work
+	}
 	if werr != nil {
 		return werr
 	}

@@ -160,6 +160,9 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		if *addrFile != "" {
 			os.Remove(*addrFile) // workers wait for the restarted coordinator's address
 		}
+		if ctx.Err() == nil {
+			return err // the store failed (Coordinator.Err)
+		}
 		fmt.Fprintln(stderr, "stopping: every accepted result is in the store; start again with the same store to resume")
 		return nil
 	}
