@@ -61,7 +61,7 @@ func BenchmarkRawVariates(b *testing.B) {
 }
 
 // rawEngine draws, per iteration, one node's exponential and d normals as the walk
-// does (the fast paths inline, the words of normals 0-2 as wave takes them), from a key derived from a
+// does (the fast paths inline, the words of normals 0-2 as wave3 takes them), from a key derived from a
 // parent's.
 func rawEngine(b *testing.B, d int) {
 	var r nodeRand
@@ -92,7 +92,7 @@ func rawEngine(b *testing.B, d int) {
 // skeleton is a depth-first walk with everything but the keys, the lifetimes and the
 // recursion taken out: the part of a node's cost that is a chain of dependent steps
 // (key, then lifetime, then the leaf-or-branch test) and, depth first, cannot overlap
-// with the next node. The batched walk (wave) is not bound by it.
+// with the next node. The batched walk (wave3) is not bound by it.
 type skeleton struct {
 	horizon float64
 	nodes   uint64

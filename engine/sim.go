@@ -55,9 +55,10 @@ type walker struct {
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
 	// checkpoint to cut its path at
 	lastCheck float64
-	// stack and bufs are wave's pending broods and working arrays, kept between walks
-	stack []brood
-	bufs  *waveBufs
+	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
+	// walks
+	stack   []brood
+	leafBuf []vec
 }
 
 func newWalker(c Cell) *walker {
@@ -236,14 +237,7 @@ func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 		w.node(k, birth, pos, depth)
 		return
 	}
-	switch p := vecOf(pos); w.d {
-	case 1:
-		wave[[1]struct{}](w, k, birth, p)
-	case 2:
-		wave[[2]struct{}](w, k, birth, p)
-	default:
-		wave[[3]struct{}](w, k, birth, p)
-	}
+	w.wave3(k, birth, vecOf(pos))
 }
 
 // vec is a position in at most three dimensions, the unused coordinates 0. wave carries

@@ -6,7 +6,7 @@ import (
 	"testing"
 )
 
-// TestWaveMatchesNode: the batched walk for d <= 3 (wave) gives the same parts, byte
+// TestWaveMatchesNode: the batched walk for d <= 3 (wave3) gives the same parts, byte
 // for byte, as the depth-first general walk (node) on cells that reach every branch of
 // it: binary and ternary branching, beta a power of two and not (division against
 // multiplication), checkpoints (cut through advance), a small top-K (many offers),
@@ -45,7 +45,7 @@ func TestWaveMatchesNode(t *testing.T) {
 							continue // a range past the particles alive at the split time
 						}
 						if !bytes.Equal(a.AppendBinary(nil), b.AppendBinary(nil)) {
-							t.Fatalf("%s: wave and node give different parts", name)
+							t.Fatalf("%s: wave3 and node give different parts", name)
 						}
 					}
 				}
@@ -54,14 +54,14 @@ func TestWaveMatchesNode(t *testing.T) {
 	}
 }
 
-// TestWaveRejectionSteps: wave seeds a node's generator for the ziggurat's rejection
-// steps only when a draw needs one (in child, where flight hands such nodes), so a node
-// whose lifetime and a normal, or two normals, both need rejection steps must share one
-// generator between them, in the order node draws them. Such nodes are about 1 in 10^4,
-// too few for TestWaveMatchesNode to be sure to meet one, so this test searches for
-// parents whose first child has each pattern, then walks from the parent (d = 3, horizon
-// just past the parent's death, so the child is walked in a batch) with and without a
-// checkpoint that cuts the child's path, and compares with node byte for byte.
+// TestWaveRejectionSteps: wave3 seeds a node's generator for the ziggurat's rejection
+// steps only when a draw needs one, so a node whose lifetime and a normal, or two
+// normals, both need rejection steps must share one generator between them, in the
+// order node draws them. Such nodes are about 1 in 10^4, too few for TestWaveMatchesNode
+// to be sure to meet one, so this test searches for parents whose first child has each
+// pattern, then walks from the parent (d = 3, horizon just past the parent's death, so
+// the child is walked by wave3's batch loop) with and without a checkpoint that cuts the
+// child's path, and compares with node byte for byte.
 func TestWaveRejectionSteps(t *testing.T) {
 	slow := func(k key) [4]bool {
 		_, e := zigExp(k.hi)
@@ -98,7 +98,7 @@ func TestWaveRejectionSteps(t *testing.T) {
 			general.general = true
 			a, b := walkFrom(fast, parent), walkFrom(general, parent)
 			if !bytes.Equal(a, b) {
-				t.Errorf("pattern %v, checkpoints %v: wave and node give different parts", want, checks)
+				t.Errorf("pattern %v, checkpoints %v: wave3 and node give different parts", want, checks)
 			}
 		}
 	}
