@@ -119,6 +119,7 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer st.Close()
+	noteStoreCheck(stderr, *storePath)
 	co, err := coordinator.Open(st, sw, opt)
 	if err != nil {
 		return err
@@ -197,4 +198,13 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 	// being caught and ignored while the fits run (minutes on a large store).
 	stop()
 	return finalReport(st, *storePath, *reportDir, stdout, stderr)
+}
+
+// noteStoreCheck says, for a large store, that it is read whole before the sweep goes on
+// (the coordinator verifies it first, results.Store.Verify): a minute or more for tens of
+// gigabytes not in memory, which would otherwise pass without a word.
+func noteStoreCheck(w io.Writer, path string) {
+	if fi, err := os.Stat(path); err == nil && fi.Size() >= 1<<30 {
+		fmt.Fprintf(w, "checking %s (%.1f GiB) for damage before going on: it is read once\n", path, float64(fi.Size())/(1<<30))
+	}
 }

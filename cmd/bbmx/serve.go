@@ -98,6 +98,7 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 		return err
 	}
 	defer st.Close()
+	noteStoreCheck(stderr, *storePath)
 	co, err := coordinator.Open(st, sw, coordinator.Options{Lease: *lease, Log: log, RetryParked: *retry})
 	if err != nil {
 		return err

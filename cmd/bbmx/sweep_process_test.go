@@ -537,6 +537,17 @@ func TestRunResumeStatusAndRefusal(t *testing.T) {
 	if code, out, errs := runCLI(t, "run", "--store", store, "--no-report", sw); code != 0 || !strings.Contains(errs, "resuming") {
 		t.Fatalf("flags before the sweep file: exit %d\n%s\n%s", code, out, errs)
 	}
+	if strings.Contains(errs, "checking") {
+		t.Fatalf("a small store is checked without a word: %s", errs)
+	}
+	// A store of a gigabyte or more is checked for damage with a word first (here the
+	// file is extended with a hole: bbolt reads only the pages it wrote).
+	if err := os.Truncate(store, 1<<30); err != nil {
+		t.Fatal(err)
+	}
+	if code, out, errs := runCLI(t, "run", sw, "--store", store, "--no-report"); code != 0 || !strings.Contains(errs, "checking "+store+" (1.0 GiB) for damage") {
+		t.Fatalf("a large store: exit %d\n%s\n%s", code, out, errs)
+	}
 	code, out, _ = runCLI(t, "status", "--store", store)
 	if code != 0 || !strings.Contains(out, "complete, 600/600 replicates") {
 		t.Fatalf("status --store: exit %d\n%s", code, out)
