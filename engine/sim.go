@@ -32,7 +32,7 @@ type walker struct {
 	nNorm  uint64
 	rng    nodeRand
 	levels [][]float64 // position buffers, one per tree depth
-	// general makes subtree use node in every dimension (for tests of wave)
+	// general makes subtree use node in every dimension (for tests of wave3)
 	general bool
 	part    *Part
 	// split bookkeeping
@@ -230,7 +230,7 @@ func (w *walker) top(k key, birth float64, pos []float64, depth int) {
 }
 
 // subtree walks the full subtree of the node with key k, born at birth at position pos
-// (w.level(depth)): in batches with wave in up to three dimensions, else depth first
+// (w.level(depth)): in batches with wave3 in up to three dimensions, else depth first
 // with node.
 func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 	if w.d > 3 || w.general {
@@ -240,7 +240,7 @@ func (w *walker) subtree(k key, birth float64, pos []float64, depth int) {
 	w.wave3(k, birth, vecOf(pos))
 }
 
-// vec is a position in at most three dimensions, the unused coordinates 0. wave carries
+// vec is a position in at most three dimensions, the unused coordinates 0. wave3 carries
 // positions in these rather than in slices: the compiler keeps them in registers, and
 // the code has no bounds checks and no loops over the coordinates.
 type vec struct{ x, y, z float64 }
@@ -261,7 +261,13 @@ func vecOf(s []float64) vec {
 // coords is v's first d coordinates.
 func (v vec) coords(d int) []float64 { return []float64{v.x, v.y, v.z}[:d] }
 
-// advance3 is advance for wave: the position at time until of the node with key k,
+// radius is |v| as leaf computes it, √(x² + y² + z²): the unused coordinates' terms are
+// +0 and leave the sum's bits as they are.
+func (v *vec) radius() float64 {
+	return math.Sqrt(float64(v.x*v.x) + float64(v.y*v.y) + float64(v.z*v.z))
+}
+
+// advance3 is advance for wave3: the position at time until of the node with key k,
 // born at birth at p, cut at the checkpoints in between. w.rng must be the node's
 // generator as it stands after the node's lifetime's draw.
 func (w *walker) advance3(k key, birth, until float64, p vec) vec {

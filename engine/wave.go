@@ -142,9 +142,8 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 // calls nothing, so that the histogram's constants stay in registers: the leaves worth
 // offering to the top-K set (at least its least radius as the batch began) are noted and
 // offered after it. Offering them later changes nothing: the set keeps the K largest,
-// whatever the order they come in. A leaf's radius is node's √(x² + y² + z²), the unused
-// coordinates' terms +0. A batch has at most k*max(1, 2*waveBatch/k) <= 2*waveBatch
-// leaves, the size of the list of leaves to offer.
+// whatever the order they come in. A batch has at most k*max(1, 2*waveBatch/k) <=
+// 2*waveBatch leaves, the size of the list of leaves to offer.
 func (w *walker) leaves3(ls []vec) {
 	before := w.part.pop
 	w.part.pop += uint64(len(ls))
@@ -152,8 +151,7 @@ func (w *walker) leaves3(ls []vec) {
 	var tops [2 * waveBatch]uint16
 	nt := 0
 	for i := range ls {
-		q := &ls[i]
-		r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
+		r := ls[i].radius()
 		hist[bins.slot(r)]++
 		tops[nt&(len(tops)-1)] = uint16(i)
 		if r >= floor {
@@ -161,9 +159,7 @@ func (w *walker) leaves3(ls []vec) {
 		}
 	}
 	for _, i := range tops[:nt] {
-		q := &ls[i]
-		r := math.Sqrt(float64(q.x*q.x) + float64(q.y*q.y) + float64(q.z*q.z))
-		w.offer(r, q.coords(w.d))
+		w.offer(ls[i].radius(), ls[i].coords(w.d))
 	}
 	if before/pollLeaves != w.part.pop/pollLeaves {
 		w.poll()
