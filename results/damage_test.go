@@ -1,6 +1,7 @@
 package results
 
 import (
+	"encoding/binary"
 	"fmt"
 	"os"
 	"path/filepath"
@@ -145,5 +146,33 @@ func TestVerifyFindsDamage(t *testing.T) {
 	}
 	if found == 0 || !overflowCaught {
 		t.Fatalf("damage found %d times, a damaged overflow count caught: %v", found, overflowCaught)
+	}
+	// A value whose length runs past the end of the file (the first element of a leaf
+	// page holding plain values, its length set to 2^24): only reading the value
+	// shows it, which Verify must do.
+	lengthCaught := false
+	for pg := 2; pg < len(data)/page && !lengthCaught; pg++ {
+		e := pg*page + 16 // the first leaf element: flags, pos, ksize, vsize (4 bytes each)
+		if !leaves[pg] || binary.LittleEndian.Uint32(data[e:]) != 0 {
+			continue
+		}
+		bad := append([]byte(nil), data...)
+		binary.LittleEndian.PutUint32(bad[e+12:], 1<<24)
+		path := filepath.Join(dir, fmt.Sprintf("length-%d.db", pg))
+		if err := os.WriteFile(path, bad, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		st, err := Open(path, false)
+		if err != nil {
+			t.Fatalf("page %d: a damaged value length should open: %v", pg, err)
+		}
+		if err := st.Verify(); err == nil {
+			t.Errorf("page %d: a value running past the end of the file passed", pg)
+		}
+		st.Close()
+		lengthCaught = true
+	}
+	if !lengthCaught {
+		t.Fatal("no leaf page of plain values to damage")
 	}
 }
