@@ -176,3 +176,48 @@ func TestVerifyFindsDamage(t *testing.T) {
 		t.Fatal("no leaf page of plain values to damage")
 	}
 }
+
+// A damaged header of the free-page list, which bbolt reads while opening a store for
+// writing, is an error before bbolt maps the file, and the same path, restored from a
+// copy, opens at once in the same process. Before, bbolt panicked inside its Open, and
+// its lock stayed with the mapping lost in the panic: the second open waited and failed
+// with "in use by another process".
+func TestDamagedOpenReleasesTheFile(t *testing.T) {
+	dir := t.TempDir()
+	good := filepath.Join(dir, "good.db")
+	storeWith(t, good, 1, 0, 60)
+	data, err := os.ReadFile(good)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The free-page list's page, from the newer meta page (pages 0 and 1; after the
+	// 16-byte page header: magic, version, page size and flags, 4 bytes each, the root
+	// bucket, 16, then the list's page id, the high-water page and the transaction id).
+	const page = 4096
+	freelist, newest := uint64(0), uint64(0)
+	for m := range 2 {
+		meta := data[m*page+16:]
+		if txid := binary.LittleEndian.Uint64(meta[48:]); txid >= newest {
+			freelist, newest = binary.LittleEndian.Uint64(meta[32:]), txid
+		}
+	}
+	bad := append([]byte(nil), data...)
+	for i := range 8 {
+		bad[int(freelist)*page+8+i] ^= 0xA5 // its flags, count of free pages and overflow
+	}
+	path := filepath.Join(dir, "restored.db")
+	if err := os.WriteFile(path, bad, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := Open(path, false); err == nil || !strings.Contains(err.Error(), "is damaged") {
+		t.Fatalf("a damaged free-page list (page %d): %v", freelist, err)
+	}
+	if err := os.WriteFile(path, data, 0o644); err != nil {
+		t.Fatal(err)
+	}
+	st, err := Open(path, false)
+	if err != nil {
+		t.Fatalf("the restored store after a damaged open: %v", err)
+	}
+	st.Close()
+}

@@ -35,24 +35,60 @@ func preflight(path string) error {
 	} else if err != nil {
 		return fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
 	}
-	readMeta := func(b []byte) (pageSize, hwm, txid uint64, ok bool) {
+	readMeta := func(b []byte) (pageSize, freelist, hwm, txid uint64, ok bool) {
 		if binary.LittleEndian.Uint32(b[16:]) != boltMagic {
-			return 0, 0, 0, false
+			return 0, 0, 0, 0, false
 		}
-		return uint64(binary.LittleEndian.Uint32(b[24:])), binary.LittleEndian.Uint64(b[56:]), binary.LittleEndian.Uint64(b[64:]), true
+		return uint64(binary.LittleEndian.Uint32(b[24:])), binary.LittleEndian.Uint64(b[48:]),
+			binary.LittleEndian.Uint64(b[56:]), binary.LittleEndian.Uint64(b[64:]), true
 	}
-	ps, hwm, tx0, ok0 := readMeta(head)
+	ps, freelist, hwm, tx0, ok0 := readMeta(head)
 	if !ok0 || ps < 512 || ps > 1<<20 {
 		return fmt.Errorf("%s is not a readable bbmx store: no database header", path)
 	}
 	second := make([]byte, 80)
 	if _, err := f.ReadAt(second, int64(ps)); err == nil {
-		if ps1, hwm1, tx1, ok1 := readMeta(second); ok1 && ps1 == ps && tx1 > tx0 {
-			hwm = hwm1
+		if ps1, fl1, hwm1, tx1, ok1 := readMeta(second); ok1 && ps1 == ps && tx1 > tx0 {
+			freelist, hwm = fl1, hwm1
 		}
 	}
 	if need := hwm * ps; uint64(st.Size()) < need {
 		return fmt.Errorf("%s is truncated: %d bytes, its header says at least %d", path, st.Size(), need)
+	}
+	return checkFreelist(f, path, ps, freelist, hwm)
+}
+
+// checkFreelist checks the header of the free-page list's page, which bbolt reads while
+// opening a store for writing and trusts: damage there panics inside bbolt's Open, where
+// the file stays locked (its mapping holds the lock) until the process exits. Page
+// header: id u64, flags u16 (0x10 for this page), count u16, overflow u32; a count of
+// 0xFFFF means the count is the first u64 after the header; then the page ids, u64 each.
+func checkFreelist(f *os.File, path string, ps, freelist, hwm uint64) error {
+	const none = ^uint64(0) // a store that keeps no free-page list
+	if freelist == none {
+		return nil
+	}
+	damaged := func(what string) error {
+		return fmt.Errorf("%s is damaged (its free-page list %s): restore it from a copy", path, what)
+	}
+	if freelist < 2 || freelist >= hwm {
+		return damaged(fmt.Sprintf("is said to be page %d of %d", freelist, hwm))
+	}
+	h := make([]byte, 24)
+	if _, err := f.ReadAt(h, int64(freelist*ps)); err != nil {
+		return damaged(err.Error())
+	}
+	id, flags := binary.LittleEndian.Uint64(h), binary.LittleEndian.Uint16(h[8:])
+	count, overflow := uint64(binary.LittleEndian.Uint16(h[10:])), uint64(binary.LittleEndian.Uint32(h[12:]))
+	start := uint64(16)
+	if count == 0xFFFF {
+		count, start = binary.LittleEndian.Uint64(h[16:]), 24
+	}
+	switch {
+	case id != freelist || flags != 0x10:
+		return damaged(fmt.Sprintf("page %d has the header of page %d, type %#x", freelist, id, flags))
+	case overflow >= hwm-freelist || count > ((overflow+1)*ps-start)/8:
+		return damaged(fmt.Sprintf("page %d claims %d ids on %d pages", freelist, count, overflow+1))
 	}
 	return nil
 }
