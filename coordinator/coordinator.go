@@ -29,6 +29,9 @@
 //     MaxFailures such drops of one replicate (counted across restarts) its part tasks
 //     are parked, so a fault that recurs cannot loop forever.
 //   - A reply to Submit is sent only after the result is durable.
+//   - Parts reach the commit queue in the order they were validated (partOrder), so the
+//     part that completes a replicate, whose commit deletes the replicate's stored
+//     parts, is committed after every other part of it.
 //   - The store is verified before planning (results.Store.Verify), and a failed commit
 //     stops the sweep (Err): nothing is leased after it, since the task would only be
 //     computed again and fail the same way.
@@ -122,7 +125,10 @@ type Coordinator struct {
 	stopOnce sync.Once
 	stopped  chan struct{}
 	sendMu   sync.RWMutex // Submit's send to commits against Close (see Submit)
-	wg       sync.WaitGroup
+	// partOrder makes the parts of split replicates reach commits in the order they
+	// were validated (see Submit)
+	partOrder sync.Mutex
+	wg        sync.WaitGroup
 }
 
 type counters struct {
@@ -713,7 +719,18 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 	t.state = stateCommitting
 	c.mu.Unlock()
 
+	// A part is queued for commit in the order parts are validated: the part that
+	// completes a replicate deletes the replicate's stored parts in its commit, so a part
+	// validated before it but queued after it would be stored for good.
+	unlockOrder := func() {}
+	if t.split {
+		c.partOrder.Lock()
+		unlockOrder = c.partOrder.Unlock
+	}
 	cr, err := c.validate(t, prev, req)
+	if err != nil {
+		unlockOrder()
+	}
 	var notAssembled *assemblyError
 	if errors.As(err, &notAssembled) {
 		// Not this worker's fault as far as anyone can tell: validate has dropped the
@@ -739,11 +756,13 @@ func (c *Coordinator) Submit(ctx context.Context, req *pb.SubmitRequest) (*pb.Su
 	select {
 	case <-c.stopped:
 		c.sendMu.RUnlock()
+		unlockOrder()
 		c.restore(t, prev, cr)
 		return nil, status.Error(codes.Unavailable, "coordinator is shutting down")
 	default:
 		c.commits <- cr
 		c.sendMu.RUnlock()
+		unlockOrder()
 	}
 	if err := <-cr.done; err != nil {
 		c.restore(t, prev, cr)
