@@ -68,7 +68,9 @@ func runRun(args []string, stdout, stderr io.Writer) error {
 			"network. Results go to a store (one bbolt file); the default is bbmx-data/<sweep>.db.\n"+
 			"Ctrl-C stops cleanly; running the same command again resumes where it stopped and never\n"+
 			"counts a replicate twice. The sweep may grow between runs (more replicates, horizons or\n"+
-			"dimensions); changing its model, seed or observables is refused.\n\n"+
+			"dimensions); changing its model, seed or observables is refused. An existing store is\n"+
+			"read whole for damage first, and a write to it that fails (a full disk, a damaged file)\n"+
+			"stops the run with the reason; what was stored before stays.\n\n"+
 			"With --shard i/n it computes only share i of n (for clusters that forbid long-running\n"+
 			"services: a job array runs every i, then 'bbmx merge' joins the shard stores into\n"+
 			"exactly the store a coordinated run would make). See 'bbmx plan' for the cost first.\n\n"+

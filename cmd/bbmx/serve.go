@@ -32,7 +32,10 @@ func runServe(args []string, stdout, stderr io.Writer) error {
 			"sweep is complete (1 if some task failed too often and was parked: a parked task stays parked\n"+
 			"when serve is started again, until --retry-parked queues it again). SIGTERM or Ctrl-C before\n"+
 			"then stops it cleanly with status 0: every accepted result is stored, and starting it again\n"+
-			"resumes (batch jobs that hit their wall time are meant to be resubmitted so).\n\n"+
+			"resumes (batch jobs that hit their wall time are meant to be resubmitted so). An existing\n"+
+			"store is read whole for damage first; a write to it that fails (a full disk, a damaged file)\n"+
+			"stops serve with status 1 and the reason, workers are refused work, and what was stored\n"+
+			"before stays.\n\n"+
 			"Security: it listens on loopback unless --listen names another address; every call must carry\n"+
 			"the shared token (--token-file; 'bbmx secrets init' makes one). Off loopback use TLS\n"+
 			"(--tls-cert/--tls-key) and preferably client certificates (--client-ca), and open the port\n"+
