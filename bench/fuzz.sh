@@ -12,3 +12,4 @@ go test -run XXX -fuzz '^FuzzParse$' -fuzztime "$t" ./coordinator/sweep/
 go test -run XXX -fuzz '^FuzzValidateResult$' -fuzztime "$t" ./coordinator/
 go test -run XXX -fuzz '^FuzzDecodePart$' -fuzztime "$t" ./coordinator/
 go test -run XXX -fuzz '^FuzzDecodeSketch$' -fuzztime "$t" ./results/
+go test -run XXX -fuzz '^FuzzDamagedStore$' -fuzztime "$t" ./results/

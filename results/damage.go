@@ -63,6 +63,9 @@ var verifySink atomic.Uint32
 // damaged page is not turned into an error (see callOut), run it first: the coordinator
 // does before it plans or resumes a sweep. It reads the whole file once.
 //
+// Before any cursor moves, walkTree checks the trees' shape from the file itself: a
+// branch page that leads back to itself would send bbolt's cursor down without end.
+//
 // The layout check: the pages in use, each with the overflow pages its header counts,
 // and the free pages must follow one another to the end of the file. It catches a
 // damaged overflow count, which no read notices but which makes bbolt free that many
@@ -77,6 +80,10 @@ func (s *Store) Verify() error {
 	var touched byte
 	defer func() { verifySink.Store(uint32(touched)) }() // the reads must not be optimised away
 	return s.view(func(tx *bolt.Tx) error {
+		// The trees' shape first: bbolt's cursors would follow a cycle without end.
+		if err := walkTree(s.path, uint64(tx.ID())); err != nil {
+			return damaged("%v", err)
+		}
 		var walk func(b *bolt.Bucket, path string) error
 		walk = func(b *bolt.Bucket, path string) error {
 			c := b.Cursor()

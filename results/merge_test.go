@@ -16,7 +16,7 @@ import (
 	"bbmx/engine"
 )
 
-func storeWith(t *testing.T, path string, seed, from, to uint64) {
+func storeWith(t testing.TB, path string, seed, from, to uint64) {
 	t.Helper()
 	c := testCell()
 	st, err := Create(path, []byte("merge test"))

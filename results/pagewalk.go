@@ -1,0 +1,133 @@
+package results
+
+import (
+	"encoding/binary"
+	"fmt"
+	"os"
+)
+
+// walkTree checks the shape of a bbolt file's B+trees before anything follows them:
+// from the root bucket of the meta page of transaction txid, every branch page's
+// children and every bucket's root must be pages of the file, of the right type, each
+// reached once. bbolt's cursors trust this: a branch page that names itself or an
+// ancestor sends a cursor down without end, until the process runs out of memory, which
+// no guard can catch. It reads the file with ReadAt, so damage anywhere is an error here.
+//
+// Layout (go.etcd.io/bbolt, internal/common): a page header is id u64, flags u16 (0x01
+// branch, 0x02 leaf), count u16, overflow u32; a branch element is pos u32, ksize u32,
+// child page u64; a leaf element is flags u32 (0x01: the value is a bucket), pos u32,
+// ksize u32, vsize u32, its key and value at pos bytes from the element; a bucket value is
+// its root page u64 and a sequence u64, followed by the bucket's own leaf page when the
+// root is 0 (an inline bucket). The meta page holds, after its header, magic, version,
+// page size and flags (u32 each), the root bucket (16 bytes) and, at 64, the txid.
+func walkTree(path string, txid uint64) error {
+	f, err := os.Open(path)
+	if err != nil {
+		return err
+	}
+	defer f.Close()
+	head := make([]byte, 80)
+	if _, err := f.ReadAt(head, 0); err != nil {
+		return err
+	}
+	ps := uint64(binary.LittleEndian.Uint32(head[24:]))
+	var meta []byte
+	for m := range uint64(2) {
+		b := make([]byte, 80)
+		if _, err := f.ReadAt(b, int64(m*ps)); err != nil {
+			continue
+		}
+		if binary.LittleEndian.Uint32(b[16:]) == boltMagic && binary.LittleEndian.Uint64(b[64:]) == txid {
+			meta = b
+		}
+	}
+	if meta == nil || ps < 512 {
+		return fmt.Errorf("no meta page of transaction %d", txid)
+	}
+	hwm := binary.LittleEndian.Uint64(meta[56:])
+	w := treeWalk{f: f, ps: ps, hwm: hwm, seen: make([]uint64, hwm/64+1)}
+	return w.bucket(meta[32:48], "root")
+}
+
+type treeWalk struct {
+	f       *os.File
+	ps, hwm uint64
+	seen    []uint64 // pages reached so far, one bit each
+}
+
+// bucket checks the tree of the bucket whose 16-byte header is b (and, for an inline
+// bucket, whose page follows it in b).
+func (w *treeWalk) bucket(b []byte, name string) error {
+	root := binary.LittleEndian.Uint64(b)
+	if root == 0 {
+		return w.elements(b[16:], 0, name) // an inline bucket's leaf page
+	}
+	return w.page(root, name)
+}
+
+// page reads page id and checks it and the pages below it.
+func (w *treeWalk) page(id uint64, name string) error {
+	if id < 2 || id >= w.hwm {
+		return fmt.Errorf("bucket %s names page %d, outside the file's %d", name, id, w.hwm)
+	}
+	if w.seen[id/64]&(1<<(id%64)) != 0 {
+		return fmt.Errorf("page %d is reached twice (bucket %s)", id, name)
+	}
+	w.seen[id/64] |= 1 << (id % 64)
+	h := make([]byte, 16)
+	if _, err := w.f.ReadAt(h, int64(id*w.ps)); err != nil {
+		return err
+	}
+	overflow := uint64(binary.LittleEndian.Uint32(h[12:]))
+	if binary.LittleEndian.Uint64(h) != id || overflow >= w.hwm-id {
+		return fmt.Errorf("page %d has the header of page %d, spanning %d more", id, binary.LittleEndian.Uint64(h), overflow)
+	}
+	p := make([]byte, (overflow+1)*w.ps)
+	if _, err := w.f.ReadAt(p, int64(id*w.ps)); err != nil {
+		return err
+	}
+	return w.elements(p, id, name)
+}
+
+// elements checks the elements of page p (page id, or 0 for an inline bucket's page).
+func (w *treeWalk) elements(p []byte, id uint64, name string) error {
+	if len(p) < 16 {
+		return fmt.Errorf("bucket %s: a page of %d bytes", name, len(p))
+	}
+	flags, count := binary.LittleEndian.Uint16(p[8:]), int(binary.LittleEndian.Uint16(p[10:]))
+	if 16+16*count > len(p) {
+		return fmt.Errorf("page %d (bucket %s): %d elements do not fit", id, name, count)
+	}
+	for i := range count {
+		e, at := p[16+16*i:], uint64(16+16*i)
+		switch flags {
+		case 0x01: // branch: pos, ksize, child page
+			pos, ksize := uint64(binary.LittleEndian.Uint32(e)), uint64(binary.LittleEndian.Uint32(e[4:]))
+			if at+pos+ksize > uint64(len(p)) {
+				return fmt.Errorf("page %d (bucket %s): element %d lies outside the page", id, name, i)
+			}
+			if err := w.page(binary.LittleEndian.Uint64(e[8:]), name); err != nil {
+				return err
+			}
+		case 0x02: // leaf: flags, pos, ksize, vsize
+			pos, ksize := uint64(binary.LittleEndian.Uint32(e[4:])), uint64(binary.LittleEndian.Uint32(e[8:]))
+			vsize := uint64(binary.LittleEndian.Uint32(e[12:]))
+			if at+pos+ksize+vsize > uint64(len(p)) {
+				return fmt.Errorf("page %d (bucket %s): element %d lies outside the page", id, name, i)
+			}
+			if binary.LittleEndian.Uint32(e)&0x01 == 0 {
+				continue
+			}
+			key, val := p[at+pos:at+pos+ksize], p[at+pos+ksize:at+pos+ksize+vsize]
+			if len(val) < 16 {
+				return fmt.Errorf("page %d: bucket %s/%q has a header of %d bytes", id, name, key, len(val))
+			}
+			if err := w.bucket(val, name+"/"+string(key)); err != nil {
+				return err
+			}
+		default:
+			return fmt.Errorf("page %d (bucket %s) is of type %#x", id, name, flags)
+		}
+	}
+	return nil
+}
