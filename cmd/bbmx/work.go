@@ -13,6 +13,9 @@ import (
 	"syscall"
 	"time"
 
+	"google.golang.org/grpc/codes"
+	grpcstatus "google.golang.org/grpc/status"
+
 	"bbmx/coordinator"
 	"bbmx/worker"
 )
@@ -156,7 +159,7 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	start := time.Now()
 	st, err := worker.Run(ctx, cl, worker.Options{Threads: *threads, Grace: *grace, Wait: *wait, Log: log})
 	if err != nil {
-		return err
+		return refusal(err)
 	}
 	how := "the sweep is complete"
 	if ctx.Err() != nil {
@@ -165,4 +168,14 @@ func runWork(args []string, stdout, stderr io.Writer) error {
 	fmt.Fprintf(stdout, "worker done (%s): %d results accepted, %d duplicates, %d handed back; %s simulating in %s\n",
 		how, st.Tasks, st.Duplicates, st.Released, st.Compute.Round(time.Millisecond), time.Since(start).Round(time.Millisecond))
 	return nil
+}
+
+// refusal words a coordinator's refusal of work (a store that can no longer be written,
+// say) as the coordinator's own reason, not as a gRPC status. Other errors pass as they
+// are.
+func refusal(err error) error {
+	if s, ok := grpcstatus.FromError(err); ok && s.Code() == codes.FailedPrecondition {
+		return fmt.Errorf("the coordinator refused work: %s", s.Message())
+	}
+	return err
 }

@@ -8,6 +8,9 @@ import (
 	"syscall"
 	"testing"
 	"time"
+
+	"google.golang.org/grpc/codes"
+	grpcstatus "google.golang.org/grpc/status"
 )
 
 // A coordinator address without a port is a usage error at once. gRPC took it as port
@@ -71,5 +74,18 @@ func TestProcessWorkerFollowsRestartedCoordinator(t *testing.T) {
 	}
 	if got := storeDigest(t, store); got != want {
 		t.Fatal("the store after the coordinator moved differs from the local run")
+	}
+}
+
+// A coordinator's refusal of work reaches the user as its reason, without the gRPC
+// status around it; other errors are left as they are.
+func TestRefusalIsWorded(t *testing.T) {
+	err := refusal(grpcstatus.Error(codes.FailedPrecondition, "writing to the store s.db failed (disk full)"))
+	if err.Error() != "the coordinator refused work: writing to the store s.db failed (disk full)" {
+		t.Errorf("refusal: %v", err)
+	}
+	other := grpcstatus.Error(codes.Unavailable, "connection refused")
+	if refusal(other) != other {
+		t.Errorf("an unavailable coordinator: %v", refusal(other))
 	}
 }
