@@ -55,17 +55,39 @@ type treeWalk struct {
 	seen    []uint64 // pages reached so far, one bit each
 }
 
-// bucket checks the tree of the bucket whose 16-byte header is b (and, for an inline
-// bucket, whose page follows it in b).
+// span is the bytes of one page as walkTree reads them: a page of the file (at byte base,
+// size bytes with its overflow pages), or an inline bucket's page held in memory. Only
+// the parts needed are read, so a damaged size costs no memory.
+type span struct {
+	f    *os.File
+	base uint64
+	mem  []byte
+	size uint64
+}
+
+func (s span) read(off, n uint64) ([]byte, error) {
+	if off+n > s.size {
+		return nil, fmt.Errorf("bytes %d to %d of a page of %d", off, off+n, s.size)
+	}
+	if s.f == nil {
+		return s.mem[off : off+n], nil
+	}
+	b := make([]byte, n)
+	_, err := s.f.ReadAt(b, int64(s.base+off))
+	return b, err
+}
+
+// bucket checks the tree of the bucket whose 16-byte header starts b (for an inline
+// bucket its page follows in b).
 func (w *treeWalk) bucket(b []byte, name string) error {
 	root := binary.LittleEndian.Uint64(b)
 	if root == 0 {
-		return w.elements(b[16:], 0, name) // an inline bucket's leaf page
+		return w.elements(span{mem: b[16:], size: uint64(len(b) - 16)}, 0, name)
 	}
 	return w.page(root, name)
 }
 
-// page reads page id and checks it and the pages below it.
+// page checks page id and the pages below it.
 func (w *treeWalk) page(id uint64, name string) error {
 	if id < 2 || id >= w.hwm {
 		return fmt.Errorf("bucket %s names page %d, outside the file's %d", name, id, w.hwm)
@@ -82,28 +104,26 @@ func (w *treeWalk) page(id uint64, name string) error {
 	if binary.LittleEndian.Uint64(h) != id || overflow >= w.hwm-id {
 		return fmt.Errorf("page %d has the header of page %d, spanning %d more", id, binary.LittleEndian.Uint64(h), overflow)
 	}
-	p := make([]byte, (overflow+1)*w.ps)
-	if _, err := w.f.ReadAt(p, int64(id*w.ps)); err != nil {
-		return err
-	}
-	return w.elements(p, id, name)
+	return w.elements(span{f: w.f, base: id * w.ps, size: (overflow + 1) * w.ps}, id, name)
 }
 
 // elements checks the elements of page p (page id, or 0 for an inline bucket's page).
-func (w *treeWalk) elements(p []byte, id uint64, name string) error {
-	if len(p) < 16 {
-		return fmt.Errorf("bucket %s: a page of %d bytes", name, len(p))
+func (w *treeWalk) elements(p span, id uint64, name string) error {
+	h, err := p.read(0, 16)
+	if err != nil {
+		return fmt.Errorf("page %d (bucket %s): %v", id, name, err)
 	}
-	flags, count := binary.LittleEndian.Uint16(p[8:]), int(binary.LittleEndian.Uint16(p[10:]))
-	if 16+16*count > len(p) {
-		return fmt.Errorf("page %d (bucket %s): %d elements do not fit", id, name, count)
+	flags, count := binary.LittleEndian.Uint16(h[8:]), uint64(binary.LittleEndian.Uint16(h[10:]))
+	es, err := p.read(16, 16*count)
+	if err != nil {
+		return fmt.Errorf("page %d (bucket %s): %d elements do not fit (%v)", id, name, count, err)
 	}
 	for i := range count {
-		e, at := p[16+16*i:], uint64(16+16*i)
+		e, at := es[16*i:], 16+16*i
 		switch flags {
 		case 0x01: // branch: pos, ksize, child page
 			pos, ksize := uint64(binary.LittleEndian.Uint32(e)), uint64(binary.LittleEndian.Uint32(e[4:]))
-			if at+pos+ksize > uint64(len(p)) {
+			if at+pos+ksize > p.size {
 				return fmt.Errorf("page %d (bucket %s): element %d lies outside the page", id, name, i)
 			}
 			if err := w.page(binary.LittleEndian.Uint64(e[8:]), name); err != nil {
@@ -112,15 +132,24 @@ func (w *treeWalk) elements(p []byte, id uint64, name string) error {
 		case 0x02: // leaf: flags, pos, ksize, vsize
 			pos, ksize := uint64(binary.LittleEndian.Uint32(e[4:])), uint64(binary.LittleEndian.Uint32(e[8:]))
 			vsize := uint64(binary.LittleEndian.Uint32(e[12:]))
-			if at+pos+ksize+vsize > uint64(len(p)) {
+			if at+pos+ksize+vsize > p.size {
 				return fmt.Errorf("page %d (bucket %s): element %d lies outside the page", id, name, i)
 			}
 			if binary.LittleEndian.Uint32(e)&0x01 == 0 {
 				continue
 			}
-			key, val := p[at+pos:at+pos+ksize], p[at+pos+ksize:at+pos+ksize+vsize]
-			if len(val) < 16 {
-				return fmt.Errorf("page %d: bucket %s/%q has a header of %d bytes", id, name, key, len(val))
+			// A bucket: its 16-byte header, and an inline bucket's page after it, which
+			// bbolt keeps only while it is under a quarter of a page.
+			if vsize < 16 || vsize > w.ps {
+				return fmt.Errorf("page %d (bucket %s): element %d is a bucket of %d bytes", id, name, i, vsize)
+			}
+			key, err := p.read(at+pos, min(ksize, 64))
+			if err != nil {
+				return err
+			}
+			val, err := p.read(at+pos+ksize, vsize)
+			if err != nil {
+				return err
 			}
 			if err := w.bucket(val, name+"/"+string(key)); err != nil {
 				return err
