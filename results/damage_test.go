@@ -20,20 +20,12 @@ import (
 // Deterministic: the same bytes are flipped on every run.
 func TestDamagedStoreIsAnError(t *testing.T) {
 	dir := t.TempDir()
-	good := filepath.Join(dir, "good.db")
-	storeWith(t, good, 1, 0, 60)
-	data, err := os.ReadFile(good)
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, data := goodStore(t, dir)
 	const page = 4096
 	errs := 0
 	for pg := 2; pg < len(data)/page; pg++ {
 		for _, off := range []int{0, 8, 10, 12, 16, 20} {
-			bad := append([]byte(nil), data...)
-			for i := range 8 {
-				bad[pg*page+off+i] ^= 0xA5
-			}
+			bad := flipped(data, pg*page+off)
 			path := filepath.Join(dir, fmt.Sprintf("bad-%d-%d.db", pg, off))
 			if err := os.WriteFile(path, bad, 0o644); err != nil {
 				t.Fatal(err)
@@ -76,8 +68,7 @@ func TestDamagedStoreIsAnError(t *testing.T) {
 // Verify must catch it, and does by counting pages. An undamaged store passes.
 func TestVerifyFindsDamage(t *testing.T) {
 	dir := t.TempDir()
-	good := filepath.Join(dir, "good.db")
-	storeWith(t, good, 1, 0, 60)
+	good, data := goodStore(t, dir)
 	st, err := Open(good, false)
 	if err != nil {
 		t.Fatal(err)
@@ -96,19 +87,12 @@ func TestVerifyFindsDamage(t *testing.T) {
 		}
 	})
 	st.Close()
-	data, err := os.ReadFile(good)
-	if err != nil {
-		t.Fatal(err)
-	}
 	const page = 4096
 	found, overflowCaught := 0, false
 	for pg := 2; pg < len(data)/page; pg++ {
 		leaf := leaves[pg]
 		for _, off := range []int{0, 8, 10, 12, 16, 20} {
-			bad := append([]byte(nil), data...)
-			for i := range 8 {
-				bad[pg*page+off+i] ^= 0xA5
-			}
+			bad := flipped(data, pg*page+off)
 			// A file of its own each time: bbolt keeps the lock of a file it
 			// panicked while opening.
 			path := filepath.Join(dir, fmt.Sprintf("verify-%d-%d.db", pg, off))
@@ -184,12 +168,7 @@ func TestVerifyFindsDamage(t *testing.T) {
 // with "in use by another process".
 func TestDamagedOpenReleasesTheFile(t *testing.T) {
 	dir := t.TempDir()
-	good := filepath.Join(dir, "good.db")
-	storeWith(t, good, 1, 0, 60)
-	data, err := os.ReadFile(good)
-	if err != nil {
-		t.Fatal(err)
-	}
+	_, data := goodStore(t, dir)
 	// The free-page list's page, from the newer meta page (pages 0 and 1; after the
 	// 16-byte page header: magic, version, page size and flags, 4 bytes each, the root
 	// bucket, 16, then the list's page id, the high-water page and the transaction id).
@@ -201,10 +180,7 @@ func TestDamagedOpenReleasesTheFile(t *testing.T) {
 			freelist, newest = binary.LittleEndian.Uint64(meta[32:]), txid
 		}
 	}
-	bad := append([]byte(nil), data...)
-	for i := range 8 {
-		bad[int(freelist)*page+8+i] ^= 0xA5 // its flags, count of free pages and overflow
-	}
+	bad := flipped(data, int(freelist)*page+8) // its flags, count of free pages and overflow
 	path := filepath.Join(dir, "restored.db")
 	if err := os.WriteFile(path, bad, 0o644); err != nil {
 		t.Fatal(err)
@@ -220,4 +196,26 @@ func TestDamagedOpenReleasesTheFile(t *testing.T) {
 		t.Fatalf("the restored store after a damaged open: %v", err)
 	}
 	st.Close()
+}
+
+// goodStore makes the undamaged store the damage tests start from (60 records of one
+// cell) in dir, and returns its path and bytes.
+func goodStore(t testing.TB, dir string) (string, []byte) {
+	t.Helper()
+	good := filepath.Join(dir, "good.db")
+	storeWith(t, good, 1, 0, 60)
+	data, err := os.ReadFile(good)
+	if err != nil {
+		t.Fatal(err)
+	}
+	return good, data
+}
+
+// flipped is a copy of data with the 8 bytes at at flipped (each XOR 0xA5).
+func flipped(data []byte, at int) []byte {
+	bad := append([]byte(nil), data...)
+	for i := range 8 {
+		bad[at+i] ^= 0xA5
+	}
+	return bad
 }

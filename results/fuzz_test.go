@@ -49,12 +49,7 @@ func FuzzDecodeSketch(f *testing.F) {
 //	go test -run XXX -fuzz FuzzDamagedStore -fuzztime 60s ./results/
 func FuzzDamagedStore(f *testing.F) {
 	dir := f.TempDir()
-	good := filepath.Join(dir, "good.db")
-	storeWith(f, good, 1, 0, 60)
-	data, err := os.ReadFile(good)
-	if err != nil {
-		f.Fatal(err)
-	}
+	_, data := goodStore(f, dir)
 	for _, pg := range []uint32{0, 1, 2, 3, 4, 8} {
 		f.Add(pg*4096, []byte{0xA5, 0xA5, 0xA5, 0xA5, 0xA5, 0xA5, 0xA5, 0xA5})
 		f.Add(pg*4096+12, []byte{0xff, 0xff, 0xff, 0x7f})
