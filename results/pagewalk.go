@@ -18,35 +18,37 @@ import (
 // child page u64; a leaf element is flags u32 (0x01: the value is a bucket), pos u32,
 // ksize u32, vsize u32, its key and value at pos bytes from the element; a bucket value is
 // its root page u64 and a sequence u64, followed by the bucket's own leaf page when the
-// root is 0 (an inline bucket). The meta page holds, after its header, magic, version,
-// page size and flags (u32 each), the root bucket (16 bytes) and, at 64, the txid.
+// root is 0 (an inline bucket). Meta pages are read by readMetaPage.
 func walkTree(path string, txid uint64) error {
 	f, err := os.Open(path)
 	if err != nil {
 		return err
 	}
 	defer f.Close()
-	head := make([]byte, 80)
-	if _, err := f.ReadAt(head, 0); err != nil {
-		return err
-	}
-	ps := uint64(binary.LittleEndian.Uint32(head[24:]))
-	var meta []byte
-	for m := range uint64(2) {
+	var meta metaPage
+	found := false
+	ps := uint64(0) // from meta page 0: where meta page 1 starts
+	for m := range 2 {
 		b := make([]byte, 80)
-		if _, err := f.ReadAt(b, int64(m*ps)); err != nil {
+		if _, err := f.ReadAt(b, int64(ps)); err != nil {
+			if m == 0 {
+				return err
+			}
 			continue
 		}
-		if binary.LittleEndian.Uint32(b[16:]) == boltMagic && binary.LittleEndian.Uint64(b[64:]) == txid {
-			meta = b
+		mp, ok := readMetaPage(b)
+		if m == 0 {
+			ps = uint64(binary.LittleEndian.Uint32(b[24:])) // read even if the magic is damaged
+		}
+		if ok && mp.txid == txid {
+			meta, found = mp, true
 		}
 	}
-	if meta == nil || ps < 512 {
+	if !found || ps < 512 {
 		return fmt.Errorf("no meta page of transaction %d", txid)
 	}
-	hwm := binary.LittleEndian.Uint64(meta[56:])
-	w := treeWalk{f: f, ps: ps, hwm: hwm, seen: make([]uint64, hwm/64+1)}
-	return w.bucket(meta[32:48], "root")
+	w := treeWalk{f: f, ps: ps, hwm: meta.hwm, seen: make([]uint64, meta.hwm/64+1)}
+	return w.bucket(meta.root, "root")
 }
 
 type treeWalk struct {

@@ -35,27 +35,43 @@ func preflight(path string) error {
 	} else if err != nil {
 		return fmt.Errorf("%s is not a readable bbmx store: %w", path, err)
 	}
-	readMeta := func(b []byte) (pageSize, freelist, hwm, txid uint64, ok bool) {
-		if binary.LittleEndian.Uint32(b[16:]) != boltMagic {
-			return 0, 0, 0, 0, false
-		}
-		return uint64(binary.LittleEndian.Uint32(b[24:])), binary.LittleEndian.Uint64(b[48:]),
-			binary.LittleEndian.Uint64(b[56:]), binary.LittleEndian.Uint64(b[64:]), true
-	}
-	ps, freelist, hwm, tx0, ok0 := readMeta(head)
-	if !ok0 || ps < 512 || ps > 1<<20 {
+	m, ok := readMetaPage(head)
+	ps := m.pageSize
+	if !ok || ps < 512 || ps > 1<<20 {
 		return fmt.Errorf("%s is not a readable bbmx store: no database header", path)
 	}
 	second := make([]byte, 80)
 	if _, err := f.ReadAt(second, int64(ps)); err == nil {
-		if ps1, fl1, hwm1, tx1, ok1 := readMeta(second); ok1 && ps1 == ps && tx1 > tx0 {
-			freelist, hwm = fl1, hwm1
+		if m1, ok1 := readMetaPage(second); ok1 && m1.pageSize == ps && m1.txid > m.txid {
+			m = m1
 		}
 	}
-	if need := hwm * ps; uint64(st.Size()) < need {
+	if need := m.hwm * ps; uint64(st.Size()) < need {
 		return fmt.Errorf("%s is truncated: %d bytes, its header says at least %d", path, st.Size(), need)
 	}
-	return checkFreelist(f, path, ps, freelist, hwm)
+	return checkFreelist(f, path, ps, m.freelist, m.hwm)
+}
+
+// metaPage is what this package reads of a bbolt meta page: the page size, the root
+// bucket's 16-byte header, the free-page list's page, the high-water page and the txid.
+type metaPage struct {
+	pageSize, freelist, hwm, txid uint64
+	root                          []byte
+}
+
+// readMetaPage reads the first 80 bytes b of a meta page (layout above), and whether
+// they hold bbolt's magic number.
+func readMetaPage(b []byte) (metaPage, bool) {
+	if binary.LittleEndian.Uint32(b[16:]) != boltMagic {
+		return metaPage{}, false
+	}
+	return metaPage{
+		pageSize: uint64(binary.LittleEndian.Uint32(b[24:])),
+		root:     b[32:48],
+		freelist: binary.LittleEndian.Uint64(b[48:]),
+		hwm:      binary.LittleEndian.Uint64(b[56:]),
+		txid:     binary.LittleEndian.Uint64(b[64:]),
+	}, true
 }
 
 // checkFreelist checks the header of the free-page list's page, which bbolt reads while
