@@ -34,7 +34,9 @@ type walker struct {
 	levels [][]float64 // position buffers, one per tree depth
 	// general makes subtree use node in every dimension (for tests of wave3)
 	general bool
-	part    *Part
+	// noKernel makes wave3 use its Go loop where it would use waveKernel (for tests)
+	noKernel bool
+	part     *Part
 	// split bookkeeping
 	splitAt   float64
 	from, to  uint64

@@ -1,6 +1,9 @@
 package engine
 
-import "math"
+import (
+	"math"
+	"unsafe"
+)
 
 // waveBatch is how many broods wave3 takes off its stack at a time (binary branching;
 // for k children, 2*waveBatch/k, so that a batch holds about as many nodes).
@@ -15,10 +18,10 @@ type brood struct {
 }
 
 // wave3 walks the full subtree of the node with key k, born at birth at p (d <= 3). It
-// takes a batch of broods at a time off a stack (up to waveBatch), draws each child's lifetime and
-// increment, and pushes the child's own brood or keeps it as a leaf without a branch,
-// then records the batch's leaves. It gives the same part as node, draw for draw and
-// rounding for rounding (TestWaveMatchesNode).
+// takes a batch of broods at a time off a stack (up to waveBatch), and step walks each
+// child one step: its lifetime and increment, and it is pushed as a brood or kept as a
+// leaf without a branch; then the batch's leaves are recorded. It gives the same part
+// as node, draw for draw and rounding for rounding (TestWaveMatchesNode).
 //
 // Why batches: in a depth-first walk each node's key, lifetime and leaf-or-branch test
 // wait on the last node's, and that test goes either way near the horizon, so the
@@ -43,13 +46,12 @@ func (w *walker) wave3(k key, birth float64, p vec) {
 	a, b := k.mixes()
 	st := append(w.stack[:0], brood{a, b, death, q})
 	var batch [waveBatch]brood
-	d, kids := w.d, w.k
+	kids := w.k
 	most := max(1, 2*waveBatch/kids) // broods per batch
 	if len(w.leafBuf) < kids*most {
 		w.leafBuf = make([]vec, kids*most)
 	}
 	leaves := w.leafBuf
-	sigma, lastCheck := w.sigma, w.lastCheck
 	for len(st) > 0 {
 		n := min(len(st), most)
 		base := len(st) - n
@@ -57,72 +59,152 @@ func (w *walker) wave3(k key, birth float64, p vec) {
 		if need := base + kids*n; need > cap(st) {
 			st = append(st[:cap(st)], make([]brood, need-cap(st))...)
 		}
-		out := st[base : base+kids*n]
-		horizon := w.horizon // poll may move it between batches
-		sp, lp := 0, 0
-		// One loop over the batch's nodes, not a loop per brood: a short inner loop's
-		// exit is a branch the processor may mispredict once per brood.
-		for j := range kids * n {
-			bi, c := j>>1, j&1
-			if kids != 2 {
-				bi, c = j/kids, j%kids
-			}
-			br := &batch[bi]
-			k := childOf(br.a, br.b, c)
-			var r *nodeRand // see rejections
-			e, ok := zigExp(k.hi)
-			if !ok {
-				e = w.rejections(k, &r).expSlow(k.hi)
-			}
-			death := br.birth + w.perRate(e)
-			until := min(death, horizon)
-			q := br.p
-			if br.birth > lastCheck {
-				if dt := until - br.birth; dt > 0 {
-					sd := sigma * math.Sqrt(dt)
-					z, ok := zigNormal(k.lo)
-					if !ok {
-						z = w.rejections(k, &r).normSlow(k.lo)
-					}
-					q.x += float64(sd * z)
-					if d > 1 {
-						u := spareWord(k)
-						z, ok := zigNormal(u)
-						if !ok {
-							z = w.rejections(k, &r).normSlow(u)
-						}
-						q.y += float64(sd * z)
-					}
-					if d > 2 {
-						u := mix64(k.lo + normal2Gamma)
-						z, ok := zigNormal(u)
-						if !ok {
-							z = w.rejections(k, &r).normSlow(u)
-						}
-						q.z += float64(sd * z)
-					}
-				}
-			} else {
-				w.rejections(k, &r)
-				q = w.advance3(k, br.birth, until, br.p)
-			}
-			// Both outcomes are written, field by field (a composite literal is
-			// copied in 16-byte moves that stall on the 8-byte stores just made);
-			// the counts say which one stands.
-			leaf := int(math.Float64bits(horizon-death) >> 63) // death > horizon
-			l := &leaves[lp]
-			l.x, l.y, l.z = q.x, q.y, q.z
-			lp += leaf
-			o := &out[sp]
-			o.a, o.b = k.mixes()
-			o.birth = death
-			o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
-			sp += 1 - leaf
-		}
+		sp, lp := w.step(batch[:n], st[base:base+kids*n], leaves)
 		st = st[:base+sp]
 		w.leaves3(leaves[:lp])
 	}
 	w.stack = st[:0]
+}
+
+// step walks each child of a batch of broods one step, as node walks a node: the
+// children living past the horizon (or exactly to it) are written to leaves, the
+// others to out as broods, and the numbers of each are returned. Most children are
+// taken by fast paths: waveKernel (binary branching, where this build has it) or
+// fastStep. Those need no rejection step, no checkpoint cut, and have time left to
+// move; the others are listed by the fast path and walked here by child3, after the
+// rest.
+func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
+	horizon := w.horizon // poll may move it between batches
+	var slow [2 * waveBatch]uint32
+	var ns int
+	if w.k == 2 && haveKernel && !w.noKernel {
+		c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, d: w.d, divide: 1}
+		if w.invBetaExact {
+			c.rate, c.divide = w.invBeta, 0
+		}
+		ob, lb, sb := waveKernel(&batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
+		sp, lp, ns = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{})), sb/4
+	} else {
+		sp, lp, ns = w.fastStep(batch, out, leaves, &slow, horizon)
+	}
+	for _, j := range slow[:ns] {
+		br := &batch[int(j)/w.k]
+		k := childOf(br.a, br.b, int(j)%w.k)
+		death, q := w.child3(k, br.birth, br.p, horizon)
+		leaf := int(math.Float64bits(horizon-death) >> 63) // as in fastStep
+		l := &leaves[lp]
+		l.x, l.y, l.z = q.x, q.y, q.z
+		lp += leaf
+		o := &out[sp]
+		o.a, o.b = k.mixes()
+		o.birth = death
+		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
+		sp += 1 - leaf
+	}
+	return sp, lp
+}
+
+// fastStep is step's fast path in Go, for any number of children (waveKernel's
+// contract, which see): the children its fast paths take are written to out and
+// leaves, the others' numbers (j for child j%k of batch[j/k]) to slow. It returns the
+// counts of each.
+func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * waveBatch]uint32, horizon float64) (sp, lp, ns int) {
+	d, kids := w.d, w.k
+	sigma, lastCheck := w.sigma, w.lastCheck
+	// One loop over the batch's nodes, not a loop per brood: a short inner loop's exit
+	// is a branch the processor may mispredict once per brood.
+	for j := range kids * len(batch) {
+		bi, c := j>>1, j&1
+		if kids != 2 {
+			bi, c = j/kids, j%kids
+		}
+		br := &batch[bi]
+		if br.birth <= lastCheck { // cut at a checkpoint
+			slow[ns&(len(slow)-1)] = uint32(j)
+			ns++
+			continue
+		}
+		k := childOf(br.a, br.b, c)
+		e, ok := zigExp(k.hi)
+		death := br.birth + w.perRate(e)
+		dt := min(death, horizon) - br.birth
+		sd := sigma * math.Sqrt(dt)
+		z, ok0 := zigNormal(k.lo)
+		q := br.p
+		q.x += float64(sd * z)
+		ok = ok && ok0 && dt > 0
+		if d > 1 {
+			z, ok1 := zigNormal(spareWord(k))
+			q.y += float64(sd * z)
+			ok = ok && ok1
+		}
+		if d > 2 {
+			z, ok2 := zigNormal(mix64(k.lo + normal2Gamma))
+			q.z += float64(sd * z)
+			ok = ok && ok2
+		}
+		if !ok {
+			slow[ns&(len(slow)-1)] = uint32(j)
+			ns++
+			continue
+		}
+		// Both outcomes are written, field by field (a composite literal is copied
+		// in 16-byte moves that stall on the 8-byte stores just made); the counts
+		// say which one stands.
+		leaf := int(math.Float64bits(horizon-death) >> 63) // death > horizon
+		l := &leaves[lp]
+		l.x, l.y, l.z = q.x, q.y, q.z
+		lp += leaf
+		o := &out[sp]
+		o.a, o.b = k.mixes()
+		o.birth = death
+		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
+		sp += 1 - leaf
+	}
+	return sp, lp, ns
+}
+
+// child3 is one child of wave3 walked in full, as node walks it: its death and its
+// position at min(death, horizon), given its key and its birth time and position.
+func (w *walker) child3(k key, birth float64, p vec, horizon float64) (float64, vec) {
+	var r *nodeRand // see rejections
+	e, ok := zigExp(k.hi)
+	if !ok {
+		e = w.rejections(k, &r).expSlow(k.hi)
+	}
+	death := birth + w.perRate(e)
+	until := min(death, horizon)
+	q := p
+	if birth > w.lastCheck {
+		if dt := until - birth; dt > 0 {
+			sd := w.sigma * math.Sqrt(dt)
+			z, ok := zigNormal(k.lo)
+			if !ok {
+				z = w.rejections(k, &r).normSlow(k.lo)
+			}
+			q.x += float64(sd * z)
+			if w.d > 1 {
+				u := spareWord(k)
+				z, ok := zigNormal(u)
+				if !ok {
+					z = w.rejections(k, &r).normSlow(u)
+				}
+				q.y += float64(sd * z)
+			}
+			if w.d > 2 {
+				u := mix64(k.lo + normal2Gamma)
+				z, ok := zigNormal(u)
+				if !ok {
+					z = w.rejections(k, &r).normSlow(u)
+				}
+				q.z += float64(sd * z)
+			}
+		}
+	} else {
+		w.rejections(k, &r)
+		q = w.advance3(k, birth, until, p)
+	}
+	return death, q
 }
 
 // rejections returns the generator for the rejection steps of the node with key k:

@@ -3,7 +3,10 @@ package engine
 import (
 	"bytes"
 	"fmt"
+	"math"
+	"math/rand/v2"
 	"testing"
+	"unsafe"
 )
 
 // TestWaveMatchesNode: the batched walk for d <= 3 (wave3) gives the same parts, byte
@@ -28,8 +31,8 @@ func TestWaveMatchesNode(t *testing.T) {
 				{Model: m, Horizon: 0.4},
 			} {
 				c = c.WithDefaults()
-				fast, general := newWalker(c), newWalker(c)
-				general.general = true
+				fast, loop, general := newWalker(c), newWalker(c), newWalker(c)
+				loop.noKernel, general.general = true, true
 				for rep := uint64(0); rep < 12; rep++ {
 					for _, split := range []struct {
 						at       float64
@@ -37,15 +40,19 @@ func TestWaveMatchesNode(t *testing.T) {
 					}{{0, 0, 1}, {0.3, 0, 1}, {0.3, 1, 3}} {
 						name := fmt.Sprintf("d=%d model %d T=%v checkpoints %v rep %d split %v", d, mi, c.Horizon, c.Observe.Checkpoints, rep, split)
 						a, errA := fast.run(5, rep, split.at, split.from, split.to)
+						l, errL := loop.run(5, rep, split.at, split.from, split.to)
 						b, errB := general.run(5, rep, split.at, split.from, split.to)
-						if (errA == nil) != (errB == nil) {
-							t.Fatalf("%s: errors differ: %v, %v", name, errA, errB)
+						if (errA == nil) != (errB == nil) || (errL == nil) != (errB == nil) {
+							t.Fatalf("%s: errors differ: %v, %v, %v", name, errA, errL, errB)
 						}
 						if errA != nil {
 							continue // a range past the particles alive at the split time
 						}
 						if !bytes.Equal(a.AppendBinary(nil), b.AppendBinary(nil)) {
 							t.Fatalf("%s: wave3 and node give different parts", name)
+						}
+						if !bytes.Equal(l.AppendBinary(nil), b.AppendBinary(nil)) {
+							t.Fatalf("%s: wave3 without waveKernel and node give different parts", name)
 						}
 					}
 				}
@@ -94,11 +101,11 @@ func TestWaveRejectionSteps(t *testing.T) {
 		for _, checks := range [][]float64{nil, {life + 0.1}} {
 			c := Cell{Model: Model{Dim: 3, Sigma: 1, Beta: 1, Children: 2}, Horizon: life + 0.2,
 				Observe: Observe{Checkpoints: checks}}.WithDefaults()
-			fast, general := newWalker(c), newWalker(c)
-			general.general = true
-			a, b := walkFrom(fast, parent), walkFrom(general, parent)
-			if !bytes.Equal(a, b) {
-				t.Errorf("pattern %v, checkpoints %v: wave3 and node give different parts", want, checks)
+			fast, loop, general := newWalker(c), newWalker(c), newWalker(c)
+			loop.noKernel, general.general = true, true
+			a, l, b := walkFrom(fast, parent), walkFrom(loop, parent), walkFrom(general, parent)
+			if !bytes.Equal(a, b) || !bytes.Equal(l, b) {
+				t.Errorf("pattern %v, checkpoints %v: wave3 (%v, without waveKernel %v) and node give different parts", want, checks, bytes.Equal(a, b), bytes.Equal(l, b))
 			}
 		}
 	}
@@ -115,4 +122,81 @@ func walkFrom(w *walker, k key) []byte {
 	w.subtree(k, 0, origin, 0)
 	w.part.Roots = 1
 	return w.part.AppendBinary(nil)
+}
+
+// TestWaveKernelMatchesLoop: one step of a batch by waveKernel (assembly) and by
+// fastStep (Go) write the same broods and leaves, bit for bit and in the same order,
+// for batches of made-up broods that reach every branch: births before, at and after
+// the last checkpoint, births at the horizon (no time left to move) and just before
+// it, positions far from the origin, and rates whose reciprocal is exact or not.
+// Deterministic.
+func TestWaveKernelMatchesLoop(t *testing.T) {
+	if !haveKernel {
+		t.Skip("no waveKernel on this architecture")
+	}
+	rng := rand.New(rand.NewPCG(11, 12))
+	for d := 1; d <= 3; d++ {
+		for _, beta := range []float64{1, 0.25, 0.7, 3} {
+			c := Cell{Model: Model{Dim: d, Sigma: 1.3, Beta: beta, Children: 2}, Horizon: 5,
+				Observe: Observe{Checkpoints: []float64{1, 2}}}.WithDefaults()
+			kernel, loop := newWalker(c), newWalker(c)
+			loop.noKernel = true
+			for _, w := range []*walker{kernel, loop} { // as walkFrom sets a walk up
+				w.part = w.newPart(0, 0, 0, 1)
+				w.splitAt, w.from, w.to, w.rootIndex, w.prefix = 0, 0, 1, 1, true
+			}
+			for round := range 200 {
+				n := 1 + rng.IntN(waveBatch)
+				batch := make([]brood, n)
+				for i := range batch {
+					br := &batch[i]
+					br.a, br.b = rng.Uint64(), rng.Uint64()
+					switch rng.IntN(8) {
+					case 0:
+						br.birth = 2 // at the last checkpoint
+					case 1:
+						br.birth = 5 // at the horizon
+					case 2:
+						br.birth = math.Nextafter(5, 0)
+					case 3:
+						br.birth = rng.Float64() * 2
+					default:
+						br.birth = 2 + 3*rng.Float64()
+					}
+					br.p = vec{x: rng.NormFloat64() * 40}
+					if d > 1 {
+						br.p.y = rng.NormFloat64() * 40
+					}
+					if d > 2 {
+						br.p.z = rng.NormFloat64() * 1e6
+					}
+				}
+				outK, outL := make([]brood, 2*n), make([]brood, 2*n)
+				leavesK, leavesL := make([]vec, 2*n), make([]vec, 2*n)
+				spK, lpK := kernel.step(batch, outK, leavesK)
+				spL, lpL := loop.step(batch, outL, leavesL)
+				if spK != spL || lpK != lpL {
+					t.Fatalf("d=%d beta=%v round %d: %d broods and %d leaves, against %d and %d", d, beta, round, spK, lpK, spL, lpL)
+				}
+				for i := range spK {
+					if !sameBits(outK[i], outL[i]) {
+						t.Fatalf("d=%d beta=%v round %d: brood %d is %+v, against %+v", d, beta, round, i, outK[i], outL[i])
+					}
+				}
+				for i := range lpK {
+					if !sameBits(leavesK[i], leavesL[i]) {
+						t.Fatalf("d=%d beta=%v round %d: leaf %d is %+v, against %+v", d, beta, round, i, leavesK[i], leavesL[i])
+					}
+				}
+				if !bytes.Equal(kernel.part.AppendBinary(nil), loop.part.AppendBinary(nil)) {
+					t.Fatalf("d=%d beta=%v round %d: the checkpoint sums differ", d, beta, round)
+				}
+			}
+		}
+	}
+}
+
+// sameBits is whether a and b, broods or vecs, are the same bits.
+func sameBits[T brood | vec](a, b T) bool {
+	return bytes.Equal(unsafe.Slice((*byte)(unsafe.Pointer(&a)), unsafe.Sizeof(a)), unsafe.Slice((*byte)(unsafe.Pointer(&b)), unsafe.Sizeof(b)))
 }

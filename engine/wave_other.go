@@ -1,0 +1,16 @@
+//go:build !amd64
+
+package engine
+
+// haveKernel says whether this build has waveKernel in assembly: not on this
+// architecture, where wave3 uses its Go loop for every batch.
+const haveKernel = false
+
+type waveConsts struct {
+	horizon, rate, sigma, lastCheck float64
+	d, divide                       int
+}
+
+func waveKernel(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+	panic("engine: waveKernel has no assembly on this architecture")
+}
