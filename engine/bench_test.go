@@ -3,7 +3,9 @@ package engine
 import (
 	"fmt"
 	"math/rand/v2"
+	"slices"
 	"testing"
+	"time"
 )
 
 // BenchmarkNode reports the engine's cost per tree node (T = 10, no checkpoints).
@@ -61,12 +63,22 @@ func BenchmarkRawVariates(b *testing.B) {
 }
 
 // rawEngine draws, per iteration, one node's exponential and d normals as the walk
-// does (the fast paths inline, the words of normals 0-2 as wave3 takes them), from a key derived from a
-// parent's.
+// does (the fast paths inline, the words of normals 0-2 as wave3 takes them), from a
+// key derived from a parent's.
 func rawEngine(b *testing.B, d int) {
+	s := rawDraws(d, 0, b.N)
+	if s == 0.5 {
+		b.Log(s)
+	}
+	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
+}
+
+// rawDraws is rawEngine's loop for nodes from, from+1, ..., from+n-1; it returns the
+// sum of the draws, so that they are not optimised away.
+func rawDraws(d, from, n int) float64 {
 	var r nodeRand
 	var s float64
-	for i := 0; i < b.N; i++ {
+	for i := from; i < from+n; i++ {
 		k := childOf(uint64(i), uint64(i)*0x9e3779b97f4a7c15, i&1)
 		r.seed(k)
 		e, ok := zigExp(k.hi)
@@ -83,10 +95,57 @@ func rawEngine(b *testing.B, d int) {
 			s += z
 		}
 	}
-	if s == 0.5 {
-		b.Log(s)
+	return s
+}
+
+// BenchmarkWalkOverRaw measures walk / raw (the cost per node of the walk over that of
+// drawing a node's variates, BenchmarkNode over BenchmarkRawVariates/engine) with the
+// two taking turns every millisecond or so: each iteration walks one replicate (binary,
+// T = 10) and then draws as many nodes' variates. On a machine whose load changes from
+// second to second, the two separate benchmarks see different machines; here each pair
+// sees about the same one. It reports the medians over iterations of walk and raw ns per
+// node and of their ratio.
+func BenchmarkWalkOverRaw(b *testing.B) {
+	for _, d := range []int{1, 2, 3} {
+		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
+			c := Cell{Model: Model{Dim: d, Sigma: 1, Beta: 1, Children: 2}, Horizon: 10}.WithDefaults()
+			w := newWalker(c)
+			walk, raw, ratio := make([]float64, b.N), make([]float64, b.N), make([]float64, b.N)
+			var sink float64
+			drawn := 0
+			for i := 0; i < b.N; i++ {
+				t0 := time.Now()
+				p, err := w.run(1, uint64(i), 0, 0, 1)
+				if err != nil {
+					b.Fatal(err)
+				}
+				t1 := time.Now()
+				nodes := int(2*p.pop - 1)
+				sink += rawDraws(d, drawn, nodes)
+				drawn += nodes
+				t2 := time.Now()
+				walk[i] = float64(t1.Sub(t0).Nanoseconds()) / float64(nodes)
+				raw[i] = float64(t2.Sub(t1).Nanoseconds()) / float64(nodes)
+				ratio[i] = walk[i] / raw[i]
+			}
+			if sink == 0.5 {
+				b.Log(sink)
+			}
+			b.ReportMetric(median(walk), "walk-ns/node")
+			b.ReportMetric(median(raw), "raw-ns/node")
+			b.ReportMetric(median(ratio), "walk/raw")
+		})
 	}
-	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(b.N), "ns/node")
+}
+
+func median(x []float64) float64 {
+	s := slices.Clone(x)
+	slices.Sort(s)
+	if n := len(s); n%2 == 1 {
+		return s[n/2]
+	} else {
+		return (s[n/2-1] + s[n/2]) / 2
+	}
 }
 
 // skeleton is a depth-first walk with everything but the keys, the lifetimes and the
