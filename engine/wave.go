@@ -78,11 +78,11 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	var slow [2 * waveBatch]uint32
 	var ns int
 	if w.k == 2 && haveKernel && !w.noKernel {
-		c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, d: w.d, divide: 1}
+		c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, divide: 1}
 		if w.invBetaExact {
 			c.rate, c.divide = w.invBeta, 0
 		}
-		ob, lb, sb := waveKernel(&batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
+		ob, lb, sb := waveKernel(w.d, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
 		sp, lp, ns = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{})), sb/4
 	} else {
 		sp, lp, ns = w.fastStep(batch, out, leaves, &slow, horizon)

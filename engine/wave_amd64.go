@@ -4,19 +4,38 @@ package engine
 const haveKernel = true
 
 // waveConsts is what waveKernel needs besides its batch: the horizon, the rate as it is
-// applied (1/beta to multiply by, or beta to divide by, as divide says), sigma, the
-// last checkpoint time and the dimension (1 to 3).
+// applied (1/beta to multiply by, or beta to divide by, as divide says), sigma and
+// the last checkpoint time.
 type waveConsts struct {
 	horizon, rate, sigma, lastCheck float64
-	d, divide                       int
+	divide                          int
 }
 
-// waveKernel walks one step of the m = 2*len(broods) children of a batch of binary
-// broods, as wave3's loop does: child j is child j%2 of batch[j/2]. Each child that
-// its fast paths can take is written to out (a brood to walk further) or to leaves;
-// the others (a rejection step, a checkpoint cut, no time left to move) are listed in
-// slow by their number j, for the caller to walk. It returns the bytes written to
-// out, leaves and slow.
+// waveKernel1, 2 and 3 walk one step of the m = 2*len(broods) children of a batch of
+// binary broods in 1, 2 and 3 dimensions, as fastStep does: child j is child j%2 of
+// batch[j/2]. Each child that the fast paths take is written to out (a brood to walk
+// further) or to leaves; the others (a rejection step, a checkpoint cut, no time left
+// to move) are listed in slow by their number j, in increasing order, for the caller to
+// walk. They return the bytes written to out, leaves and slow. The coordinates past
+// the dimension are neither read nor written: they are 0 in every brood and leaf that
+// wave3 writes.
 //
 //go:noescape
-func waveKernel(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+func waveKernel1(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+//go:noescape
+func waveKernel2(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+//go:noescape
+func waveKernel3(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+// waveKernel is waveKernel1, 2 or 3 for d dimensions.
+func waveKernel(d int, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+	switch d {
+	case 1:
+		return waveKernel1(batch, m, out, leaves, slow, c)
+	case 2:
+		return waveKernel2(batch, m, out, leaves, slow, c)
+	}
+	return waveKernel3(batch, m, out, leaves, slow, c)
+}

@@ -8,9 +8,9 @@ const haveKernel = false
 
 type waveConsts struct {
 	horizon, rate, sigma, lastCheck float64
-	d, divide                       int
+	divide                          int
 }
 
-func waveKernel(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+func waveKernel(d int, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
 	panic("engine: waveKernel has no assembly on this architecture")
 }
