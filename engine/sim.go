@@ -47,6 +47,9 @@ type walker struct {
 	// are kept (-Inf before): the least radius worth offering
 	hist     []uint64
 	topFloor float64
+	// leftEdge is the radius at the histogram's left edge, centre + hist0, or 0 where
+	// leaves3 must not use it (see newWalker)
+	leftEdge float64
 	// invBeta = 1/beta, used instead of dividing when that gives the same bits (beta a
 	// power of two, so 1/beta is exact)
 	invBeta      float64
@@ -81,6 +84,13 @@ func newWalker(c Cell) *walker {
 		w.invBeta, w.invBetaExact = 1/m.Beta, true
 	}
 	w.bins.lastBin = float64(w.nBins - 1)
+	// The histogram's left edge as a radius, where leaves3 may leave radii below it
+	// uncounted: not where the edge is so small against the centre that the rounding
+	// of r - centre could move a radius across it (the bound is taken 2^-30 of itself
+	// lower), nor where it is not positive.
+	if e := w.bins.centre + w.bins.hist0; e > w.bins.centre*0x1p-20 {
+		w.leftEdge = e
+	}
 	g := m.Growth()
 	for _, s := range w.checks {
 		w.zScale = append(w.zScale, -2*g*s)
@@ -265,9 +275,10 @@ func (v vec) coords(d int) []float64 { return []float64{v.x, v.y, v.z}[:d] }
 
 // radius is |v| as leaf computes it, √(x² + y² + z²): the unused coordinates' terms are
 // +0 and leave the sum's bits as they are.
-func (v *vec) radius() float64 {
-	return math.Sqrt(float64(v.x*v.x) + float64(v.y*v.y) + float64(v.z*v.z))
-}
+func (v *vec) radius() float64 { return math.Sqrt(v.square()) }
+
+// square is radius's x² + y² + z², rounded as it rounds it.
+func (v *vec) square() float64 { return float64(v.x*v.x) + float64(v.y*v.y) + float64(v.z*v.z) }
 
 // advance3 is advance for wave3: the position at time until of the node with key k,
 // born at birth at p, cut at the checkpoints in between. w.rng must be the node's

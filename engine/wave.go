@@ -220,22 +220,40 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 }
 
 // leaves3 records leaves of wave3 (as leaf does one of node's), and polls the done
-// channel when the population passes a multiple of pollLeaves. The loop over the leaves
-// calls nothing, so that the histogram's constants stay in registers: the leaves worth
-// offering to the top-K set (at least its least radius as the batch began) are noted and
-// offered after it. Offering them later changes nothing: the set keeps the K largest,
-// whatever the order they come in. A batch has at most k*max(1, 2*waveBatch/k) <=
-// 2*waveBatch leaves, the size of the list of leaves to offer.
+// channel when the population passes a multiple of pollLeaves.
+//
+// Most leaves lie far inside, left of the histogram and below the least top-K radius:
+// their records change nothing but the population. So a first loop takes each leaf's
+// squared radius and lists those at or above w.needSquare (no leaf below it can count),
+// without a branch, and only the listed leaves have their radius's square root taken
+// and are counted in the histogram. The second loop calls nothing, so that the
+// histogram's constants stay in registers: the leaves worth offering to the top-K set
+// (at least its least radius as the batch began) are noted and offered after it.
+// Offering them later changes nothing: the set keeps the K largest, whatever the order
+// they come in. A batch has at most k*max(1, 2*waveBatch/k) <= 2*waveBatch leaves, the
+// size of the lists.
 func (w *walker) leaves3(ls []vec) {
 	before := w.part.pop
 	w.part.pop += uint64(len(ls))
+	var sq [2 * waveBatch]float64
+	var need [2 * waveBatch]uint16
+	least := w.needSquare()
+	nn := 0
+	for i := range ls {
+		s := ls[i].square()
+		sq[i&(len(sq)-1)] = s
+		need[nn&(len(need)-1)] = uint16(i)
+		if s >= least {
+			nn++
+		}
+	}
 	hist, bins, floor := w.hist, w.bins, w.topFloor
 	var tops [2 * waveBatch]uint16
 	nt := 0
-	for i := range ls {
-		r := ls[i].radius()
+	for _, i := range need[:nn] {
+		r := math.Sqrt(sq[int(i)&(len(sq)-1)]) // ls[i].radius()
 		hist[bins.slot(r)]++
-		tops[nt&(len(tops)-1)] = uint16(i)
+		tops[nt&(len(tops)-1)] = i
 		if r >= floor {
 			nt++
 		}
@@ -246,4 +264,19 @@ func (w *walker) leaves3(ls []vec) {
 	if before/pollLeaves != w.part.pop/pollLeaves {
 		w.poll()
 	}
+}
+
+// needSquare is the squared radius below which a leaf surely counts in neither the
+// histogram (its radius is left of the histogram's edge, w.leftEdge) nor the top-K set
+// (its radius is below the least kept, w.topFloor), or 0 while every leaf may count.
+// The two bounds are taken 2^-30 of themselves lower, so that the rounding of the
+// square, of the square root and of the histogram's bin (a few units in the last place)
+// cannot move a leaf across them.
+func (w *walker) needSquare() float64 {
+	const shrink = 1 - 0x1p-30
+	t := min(w.leftEdge, w.topFloor) * shrink
+	if !(t > 0) {
+		return 0
+	}
+	return t * t
 }
