@@ -14,8 +14,8 @@ import (
 // for byte, as the depth-first general walk (node) on cells that reach every branch of
 // it: binary and ternary branching, beta a power of two and not (division against
 // multiplication), checkpoints (cut through advance), a small top-K (many offers),
-// splits into subtree ranges, and a horizon of 0.4 that leaves the root a leaf in many
-// replicates. Deterministic.
+// splits into subtree ranges, a horizon of 0.4 that leaves the root a leaf in many
+// replicates, and one of 9.5 where most leaves lie left of the histogram. Deterministic.
 func TestWaveMatchesNode(t *testing.T) {
 	models := []Model{
 		{Sigma: 1, Beta: 1, Children: 2},
@@ -30,6 +30,7 @@ func TestWaveMatchesNode(t *testing.T) {
 				{Model: m, Horizon: 6},
 				{Model: m, Horizon: 6, Observe: Observe{TopK: 3, Checkpoints: []float64{1, 2.5, 6}}},
 				{Model: m, Horizon: 0.4},
+				{Model: m, Horizon: 9.5}, // leaves left of the histogram: leaves3 skips them
 			} {
 				c = c.WithDefaults()
 				fast, loop, general := newWalker(c), newWalker(c), newWalker(c)
@@ -244,4 +245,72 @@ func TestNormal32(t *testing.T) {
 			}
 		}
 	}
+}
+
+// TestLeavesNearTheEdges: leaves3, which takes no square root of leaves whose squared
+// radius shows they count in neither the histogram nor the top-K set, records leaves
+// as leaf does, one by one, for radii within 300 floats of the histogram's left edge,
+// of the top-K set's least radius (right and left of the edge), and of these bounds
+// taken 2^-30 of themselves lower (where leaves3 starts to skip). Deterministic.
+func TestLeavesNearTheEdges(t *testing.T) {
+	for d := 1; d <= 3; d++ {
+		for _, firstTop := range []float64{5, -1} { // the top-K set's first members, right or left of the edge
+			c := Cell{Model: Model{Dim: d, Sigma: 1, Beta: 1, Children: 2}, Horizon: 10,
+				Observe: Observe{TopK: 4}}.WithDefaults()
+			fast, ref := newWalker(c), newWalker(c)
+			edge := fast.leftEdge
+			if !(edge > 1) {
+				t.Fatalf("d=%d: no left edge to test at (%v)", d, edge)
+			}
+			fast.part, ref.part = fast.newPart(0, 0, 0, 1), ref.newPart(0, 0, 0, 1)
+			rng := rand.New(rand.NewPCG(3, uint64(d)))
+			at := func(r float64) vec { // a leaf at about radius r, in a random direction
+				u := vec{x: 1}
+				if d > 1 {
+					u = vec{x: rng.NormFloat64(), y: rng.NormFloat64()}
+					if d > 2 {
+						u.z = rng.NormFloat64()
+					}
+					n := math.Sqrt(u.square())
+					u = vec{u.x / n, u.y / n, u.z / n}
+				}
+				return vec{r * u.x, r * u.y, r * u.z}
+			}
+			walk := func(radii []float64) { // in batches, by leaves3 and by leaf
+				for len(radii) > 0 {
+					n := min(len(radii), 2*waveBatch)
+					ls := make([]vec, n)
+					for i, r := range radii[:n] {
+						ls[i] = at(r)
+					}
+					radii = radii[n:]
+					fast.leaves3(ls)
+					for _, l := range ls {
+						ref.leaf(l.coords(d))
+					}
+				}
+			}
+			var first []float64
+			for i := range 8 {
+				first = append(first, edge+firstTop+float64(i)/8)
+			}
+			walk(first)
+			floor := fast.topFloor
+			walk(slices.Concat(floatsNear(edge), floatsNear(edge*(1-0x1p-30)),
+				floatsNear(floor), floatsNear(floor*(1-0x1p-30))))
+			if !bytes.Equal(fast.part.AppendBinary(nil), ref.part.AppendBinary(nil)) {
+				t.Errorf("d=%d, least top-K radius %v, left edge %v: leaves3 and leaf record different parts", d, floor, edge)
+			}
+		}
+	}
+}
+
+// floatsNear is r and the 300 floats either side of it.
+func floatsNear(r float64) []float64 {
+	s := []float64{r}
+	for k, lo, hi := 0, r, r; k < 300; k++ {
+		lo, hi = math.Nextafter(lo, 0), math.Nextafter(hi, math.Inf(1))
+		s = append(s, lo, hi)
+	}
+	return s
 }
