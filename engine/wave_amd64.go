@@ -1,3 +1,5 @@
+//go:build !purego
+
 package engine
 
 // haveKernel says whether this build has waveKernel in assembly.

@@ -1,3 +1,5 @@
+//go:build !purego
+
 // waveKernel1, waveKernel2 and waveKernel3 (declared in wave_amd64.go): one step of a
 // batch of binary broods in 1, 2 and 3 dimensions, as fastStep in wave.go takes it.
 // Each floating-point step is the same single IEEE operation on the same operands, so

@@ -1,9 +1,10 @@
-//go:build !amd64
+//go:build !amd64 || purego
 
 package engine
 
 // haveKernel says whether this build has waveKernel in assembly: not on this
-// architecture, where wave3 uses its Go loop for every batch.
+// architecture, or with the purego build tag; wave3 then takes every batch with
+// fastStep.
 const haveKernel = false
 
 type waveConsts struct {
