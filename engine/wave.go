@@ -104,10 +104,10 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	return sp, lp
 }
 
-// fastStep is step's fast path in Go, for any number of children (waveKernel's
-// contract, which see): the children its fast paths take are written to out and
-// leaves, the others' numbers (j for child j%k of batch[j/k]) to slow. It returns the
-// counts of each.
+// fastStep is step's fast path in Go, for any number of children: each child is
+// written to out or leaves, those that need a rejection step, a checkpoint cut or have
+// no time left to move being walked by child3 where they are met (so it lists none in
+// slow, unlike waveKernel, and returns 0 for their count).
 func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * waveBatch]uint32, horizon float64) (sp, lp, ns int) {
 	d, kids := w.d, w.k
 	sigma, lastCheck := w.sigma, w.lastCheck
@@ -119,11 +119,6 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * w
 			bi, c = j/kids, j%kids
 		}
 		br := &batch[bi]
-		if br.birth <= lastCheck { // cut at a checkpoint
-			slow[ns&(len(slow)-1)] = uint32(j)
-			ns++
-			continue
-		}
 		k := childOf(br.a, br.b, c)
 		e, ok := zigExp(k.hi)
 		death := br.birth + w.perRate(e)
@@ -132,7 +127,7 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * w
 		z, ok0 := zigNormal(k.lo)
 		q := br.p
 		q.x += float64(sd * z)
-		ok = ok && ok0 && dt > 0
+		ok = ok && ok0 && dt > 0 && br.birth > lastCheck
 		if d > 1 {
 			z, ok1 := zigNormal(spareWord(k))
 			q.y += float64(sd * z)
@@ -144,9 +139,7 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * w
 			ok = ok && ok2
 		}
 		if !ok {
-			slow[ns&(len(slow)-1)] = uint32(j)
-			ns++
-			continue
+			death, q = w.child3(k, br.birth, br.p, horizon)
 		}
 		// Both outcomes are written, field by field (a composite literal is copied
 		// in 16-byte moves that stall on the 8-byte stores just made); the counts
@@ -161,7 +154,7 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * w
 		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
 		sp += 1 - leaf
 	}
-	return sp, lp, ns
+	return sp, lp, 0
 }
 
 // child3 is one child of wave3 walked in full, as node walks it: its death and its
