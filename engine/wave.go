@@ -67,12 +67,12 @@ func (w *walker) wave3(k key, birth float64, p vec) {
 }
 
 // step walks each child of a batch of broods one step, as node walks a node: the
-// children living past the horizon (or exactly to it) are written to leaves, the
-// others to out as broods, and the numbers of each are returned. Most children are
-// taken by fast paths: waveKernel (binary branching, where this build has it) or
-// fastStep. Those need no rejection step, no checkpoint cut, and have time left to
-// move; the others are listed by the fast path and walked here by child3, after the
-// rest.
+// children living past the horizon are written to leaves, the others to out as broods,
+// and the numbers of each are returned. Most children are taken by a fast path, which
+// needs no rejection step, no checkpoint cut, and time left to move: waveKernel (binary
+// branching, where this build has it) or fastStep. The others are walked by child3:
+// fastStep calls it where it meets them; waveKernel lists them, and they are walked
+// here, after the rest.
 func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	horizon := w.horizon // poll may move it between batches
 	var slow [2 * waveBatch]uint32
