@@ -75,21 +75,19 @@ func (w *walker) wave3(k key, birth float64, p vec) {
 // here, after the rest.
 func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	horizon := w.horizon // poll may move it between batches
-	var slow [2 * waveBatch]uint32
-	var ns int
-	if w.k == 2 && haveKernel && !w.noKernel {
-		c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, divide: 1}
-		if w.invBetaExact {
-			c.rate, c.divide = w.invBeta, 0
-		}
-		ob, lb, sb := waveKernel(w.d, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
-		sp, lp, ns = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{})), sb/4
-	} else {
-		sp, lp, ns = w.fastStep(batch, out, leaves, &slow, horizon)
+	if w.k != 2 || !haveKernel || w.noKernel {
+		return w.fastStep(batch, out, leaves, horizon)
 	}
-	for _, j := range slow[:ns] {
-		br := &batch[int(j)/w.k]
-		k := childOf(br.a, br.b, int(j)%w.k)
+	c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, divide: 1}
+	if w.invBetaExact {
+		c.rate, c.divide = w.invBeta, 0
+	}
+	var slow [2 * waveBatch]uint32
+	ob, lb, sb := waveKernel(w.d, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
+	sp, lp = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{}))
+	for _, j := range slow[:sb/4] {
+		br := &batch[j/2]
+		k := childOf(br.a, br.b, int(j%2))
 		death, q := w.child3(k, br.birth, br.p, horizon)
 		leaf := int(math.Float64bits(horizon-death) >> 63) // as in fastStep
 		l := &leaves[lp]
@@ -106,9 +104,9 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 
 // fastStep is step's fast path in Go, for any number of children: each child is
 // written to out or leaves, those that need a rejection step, a checkpoint cut or have
-// no time left to move being walked by child3 where they are met (so it lists none in
-// slow, unlike waveKernel, and returns 0 for their count).
-func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * waveBatch]uint32, horizon float64) (sp, lp, ns int) {
+// no time left to move being walked by child3 where they are met. It returns the
+// numbers of broods and leaves written.
+func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, horizon float64) (sp, lp int) {
 	d, kids := w.d, w.k
 	sigma, lastCheck := w.sigma, w.lastCheck
 	// One loop over the batch's nodes, not a loop per brood: a short inner loop's exit
@@ -154,7 +152,7 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, slow *[2 * w
 		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
 		sp += 1 - leaf
 	}
-	return sp, lp, 0
+	return sp, lp
 }
 
 // child3 is one child of wave3 walked in full, as node walks it: its death and its
