@@ -18,6 +18,7 @@ type walker struct {
 	beta    float64
 	k       int
 	horizon float64
+	cellKey uint64 // c.Key(), a hash, taken once rather than per replicate
 	bins    histBins
 	nBins   int
 	checks  []float64
@@ -76,6 +77,7 @@ func newWalker(c Cell) *walker {
 		theta: m.Theta(), v: m.Speed(), lambda: c.Observe.Lambda,
 	}
 	w.dirs = DirectionGrid(m.Dim, w.nDirs)
+	w.cellKey = c.Key()
 	w.lastCheck = -1
 	if n := len(w.checks); n > 0 {
 		w.lastCheck = w.checks[n-1]
@@ -201,7 +203,7 @@ func (w *walker) run(seed, rep uint64, splitAt float64, from, to uint64) (*Part,
 	w.horizon = w.c.Horizon // poll may have moved it
 	w.part = w.newPart(rep, splitAt, from, to)
 	w.splitAt, w.from, w.to, w.rootIndex, w.prefix = splitAt, from, to, 0, from == 0
-	root := rootKey(seed, w.c.Key(), rep)
+	root := rootKey(seed, w.cellKey, rep)
 	origin := w.level(0)
 	clear(origin)
 	if splitAt == 0 {
