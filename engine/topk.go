@@ -31,16 +31,15 @@ func (a topItem) less(b topItem) bool {
 // worthy reports whether radius r could enter the set; it is the cheap test on the hot path.
 func (t *topK) worthy(r float64) bool { return len(t.items) < t.k || r >= t.items[0].r }
 
-// offer adds (r, pos) if it belongs among the k largest; pos is copied.
+// offer adds (r, pos) if it belongs among the k largest; pos is copied, never kept, so
+// that a caller's pos need not be on the heap (offers are frequent early in a walk).
 func (t *topK) offer(r float64, pos []float64) {
-	it := topItem{r: r, pos: pos}
 	if len(t.items) < t.k {
-		it.pos = append([]float64(nil), pos...)
-		t.items = append(t.items, it)
+		t.items = append(t.items, topItem{r: r, pos: append([]float64(nil), pos...)})
 		t.up(len(t.items) - 1)
 		return
 	}
-	if !t.items[0].less(it) {
+	if !t.items[0].less(topItem{r: r, pos: pos}) {
 		return
 	}
 	copy(t.items[0].pos, pos) // reuse the evicted item's storage
