@@ -6,14 +6,14 @@ package engine
 const haveKernel = true
 
 // waveConsts is what waveKernel needs besides its batch: the horizon, the rate as it is
-// applied (1/beta to multiply by, or beta to divide by, as divide says), sigma and
-// the last checkpoint time.
+// applied (1/beta to multiply by, or beta to divide by, as divide says), sigma and the
+// last checkpoint time.
 type waveConsts struct {
 	horizon, rate, sigma, lastCheck float64
 	divide                          int
 }
 
-// waveKernel1, 2 and 3 walk one step of the m = 2*len(broods) children of a batch of
+// waveKernel1, 2 and 3 (and the Div versions) walk one step of the m = 2*len(broods) children of a batch of
 // binary broods in 1, 2 and 3 dimensions, as fastStep does: child j is child j%2 of
 // batch[j/2]. Each child that the fast paths take is written to out (a brood to walk
 // further) or to leaves; the others (a rejection step, a checkpoint cut, no time left
@@ -26,18 +26,34 @@ type waveConsts struct {
 func waveKernel1(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 
 //go:noescape
+func waveKernel1Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+//go:noescape
 func waveKernel2(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+//go:noescape
+func waveKernel2Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 
 //go:noescape
 func waveKernel3(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 
-// waveKernel is waveKernel1, 2 or 3 for d dimensions.
+//go:noescape
+func waveKernel3Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+
+// waveKernel is the waveKernel function for d dimensions and c's way of applying the
+// rate.
 func waveKernel(d int, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
-	switch d {
-	case 1:
+	switch {
+	case d == 1 && c.divide == 0:
 		return waveKernel1(batch, m, out, leaves, slow, c)
-	case 2:
+	case d == 1:
+		return waveKernel1Div(batch, m, out, leaves, slow, c)
+	case d == 2 && c.divide == 0:
 		return waveKernel2(batch, m, out, leaves, slow, c)
+	case d == 2:
+		return waveKernel2Div(batch, m, out, leaves, slow, c)
+	case c.divide == 0:
+		return waveKernel3(batch, m, out, leaves, slow, c)
 	}
-	return waveKernel3(batch, m, out, leaves, slow, c)
+	return waveKernel3Div(batch, m, out, leaves, slow, c)
 }

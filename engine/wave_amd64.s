@@ -1,11 +1,13 @@
 //go:build !purego
 
 // waveKernel1, waveKernel2 and waveKernel3 (declared in wave_amd64.go): one step of a
-// batch of binary broods in 1, 2 and 3 dimensions, as fastStep in wave.go takes it.
+// batch of binary broods in 1, 2 and 3 dimensions, as fastStep in wave.go takes it; the
+// Div versions divide by beta where the others multiply by 1/beta.
 // Each floating-point step is the same single IEEE operation on the same operands, so
 // the records are the same bits (TestWaveKernelMatchesLoop, TestWaveMatchesNode). The
 // body is wave_kernel_amd64.h, one child's steps wave_child_amd64.h, included once per
-// dimension: the unused coordinates are neither loaded nor stored (they stay 0).
+// dimension and way of applying the rate: the unused coordinates are neither loaded nor
+// stored (they stay 0), and no test on the rate is left in the loop.
 //
 // Registers: SI the brood, DI the number of its first child, R8 the next brood to
 // push, R9 the next leaf, R11 and R12 the exponential's and the normal's ziggurat
@@ -50,13 +52,31 @@
 TEXT ·waveKernel1(SB), NOSPLIT, $32-72
 #include "wave_kernel_amd64.h"
 
+// func waveKernel1Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+TEXT ·waveKernel1Div(SB), NOSPLIT, $32-72
+#define DIVIDE
+#include "wave_kernel_amd64.h"
+
 // func waveKernel2(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 TEXT ·waveKernel2(SB), NOSPLIT, $32-72
 #define DIM2
+#include "wave_kernel_amd64.h"
+
+// func waveKernel2Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+TEXT ·waveKernel2Div(SB), NOSPLIT, $32-72
+#define DIM2
+#define DIVIDE
 #include "wave_kernel_amd64.h"
 
 // func waveKernel3(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 TEXT ·waveKernel3(SB), NOSPLIT, $32-72
 #define DIM2
 #define DIM3
+#include "wave_kernel_amd64.h"
+
+// func waveKernel3Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
+TEXT ·waveKernel3Div(SB), NOSPLIT, $32-72
+#define DIM2
+#define DIM3
+#define DIVIDE
 #include "wave_kernel_amd64.h"

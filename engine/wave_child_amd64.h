@@ -2,7 +2,7 @@
 // brood at SI, GHI and GLO being n*childGammaHi and n*childGammaLo. Its key
 // (childOf), lifetime and position, then it is written as a leaf or a brood: both are
 // written, and the leaf test (death > horizon) moves one of the two pointers. A child
-// the fast paths cannot take jumps to SLOW; DIV and LIVED are its own labels.
+// the fast paths cannot take jumps to SLOW.
 
 	// the key: a + n*childGammaHi, b + n*childGammaLo, mixed
 	MOVQ brood_a(SI), AX
@@ -32,11 +32,12 @@
 	XORPS X8, X8
 	CVTSQ2SD CX, X8
 	MULSD 0(R11)(DX*1), X8
-	// death = birth + e*(1/beta), or birth + e/beta (DIV)
-	CMPQ div-24(SP), $0
-	JNE DIV
+	// death = birth + e*(1/beta), or birth + e/beta
+#ifdef DIVIDE
+	DIVSD X5, X8
+#else
 	MULSD X5, X8
-LIVED:
+#endif
 	ADDSD X0, X8
 	MOVSD X8, brood_birth(R8)
 	// dt = min(death, horizon) - birth, which must be > 0; sd = sigma*sqrt(dt)

@@ -1,13 +1,12 @@
-// The body of waveKernel1, 2 and 3 (wave_amd64.s): DIM2 is defined for 2 dimensions
-// and more, DIM3 for 3.
+// The body of the waveKernel functions (wave_amd64.s): DIM2 is defined for 2
+// dimensions and more, DIM3 for 3, DIVIDE where the lifetime is e/beta rather than
+// e*(1/beta).
 
 	MOVQ c+40(FP), AX
 	MOVSD waveConsts_horizon(AX), X4
 	MOVSD waveConsts_rate(AX), X5
 	MOVSD waveConsts_sigma(AX), X6
 	MOVSD waveConsts_lastCheck(AX), X7
-	MOVQ waveConsts_divide(AX), BX
-	MOVQ BX, div-24(SP)
 	MOVQ slow+32(FP), BX
 	MOVQ BX, slowp-8(SP)
 	MOVQ batch+0(FP), SI
@@ -36,27 +35,19 @@ loop:
 #define GHI 0x9e3779b97f4a7c15
 #define GLO 0xd1b54a32d192ed03
 #define SLOW slow0
-#define DIV div0
-#define LIVED lived0
 #include "wave_child_amd64.h"
 #undef GHI
 #undef GLO
 #undef SLOW
-#undef DIV
-#undef LIVED
 
 child1:
 #define GHI 0x3c6ef372fe94f82a
 #define GLO 0xa36a9465a325da06
 #define SLOW slow1
-#define DIV div1
-#define LIVED lived1
 #include "wave_child_amd64.h"
 #undef GHI
 #undef GLO
 #undef SLOW
-#undef DIV
-#undef LIVED
 
 next:
 	ADDQ $brood__size, SI
@@ -73,15 +64,6 @@ done:
 	SUBQ slow+32(FP), R10
 	MOVQ R10, slowBytes+64(FP)
 	RET
-
-// the lifetime when 1/beta would not give the same bits as dividing by beta
-div0:
-	DIVSD X5, X8
-	JMP lived0
-
-div1:
-	DIVSD X5, X8
-	JMP lived1
 
 // children the fast paths cannot take, listed by number
 slow0:
@@ -113,4 +95,7 @@ cut:
 #endif
 #ifdef DIM3
 #undef DIM3
+#endif
+#ifdef DIVIDE
+#undef DIVIDE
 #endif
