@@ -63,8 +63,9 @@ type walker struct {
 	lastCheck float64
 	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
 	// walks
-	stack   []brood
-	leafBuf []vec
+	stack     []brood
+	leafBuf   []vec
+	leafLists *leafLists
 }
 
 func newWalker(c Cell) *walker {

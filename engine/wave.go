@@ -210,6 +210,12 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 	return *r
 }
 
+// leafLists are leaves3's lists, kept by the walker rather than cleared at every batch.
+type leafLists struct {
+	sq         [2 * waveBatch]float64 // squared radii
+	need, tops [2 * waveBatch]uint16  // leaves that can count; leaves worth offering
+}
+
 // leaves3 records leaves of wave3 (as leaf does one of node's), and polls the done
 // channel when the population passes a multiple of pollLeaves.
 //
@@ -226,20 +232,44 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 func (w *walker) leaves3(ls []vec) {
 	before := w.part.pop
 	w.part.pop += uint64(len(ls))
-	var sq [2 * waveBatch]float64
-	var need [2 * waveBatch]uint16
+	if w.leafLists == nil {
+		w.leafLists = new(leafLists)
+	}
+	sq, need, tops := &w.leafLists.sq, &w.leafLists.need, &w.leafLists.tops
 	least := w.needSquare()
 	nn := 0
-	for i := range ls {
-		s := ls[i].square()
-		sq[i&(len(sq)-1)] = s
-		need[nn&(len(need)-1)] = uint16(i)
-		if s >= least {
-			nn++
+	// square's x² + y² + z², with the terms known to be +0 left out (adding +0 to a
+	// square changes no bit)
+	switch w.d {
+	case 1:
+		for i := range ls {
+			s := ls[i].x * ls[i].x
+			sq[i&(len(sq)-1)] = s
+			need[nn&(len(need)-1)] = uint16(i)
+			if s >= least {
+				nn++
+			}
+		}
+	case 2:
+		for i := range ls {
+			s := float64(ls[i].x*ls[i].x) + float64(ls[i].y*ls[i].y)
+			sq[i&(len(sq)-1)] = s
+			need[nn&(len(need)-1)] = uint16(i)
+			if s >= least {
+				nn++
+			}
+		}
+	default:
+		for i := range ls {
+			s := ls[i].square()
+			sq[i&(len(sq)-1)] = s
+			need[nn&(len(need)-1)] = uint16(i)
+			if s >= least {
+				nn++
+			}
 		}
 	}
 	hist, bins, floor := w.hist, w.bins, w.topFloor
-	var tops [2 * waveBatch]uint16
 	nt := 0
 	for _, i := range need[:nn] {
 		r := math.Sqrt(sq[int(i)&(len(sq)-1)]) // ls[i].radius()
