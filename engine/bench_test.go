@@ -181,3 +181,40 @@ func BenchmarkWalkSkeleton(b *testing.B) {
 	}
 	b.ReportMetric(float64(b.Elapsed().Nanoseconds())/float64(s.nodes), "ns/node")
 }
+
+// BenchmarkKernelOverRaw is waveKernel's time per child over the raw draws' time per node
+// (rawDraws), the two taking turns: 20 steps of one fixed batch of 256 children born in
+// [8, 10) against the draws of 5,120 nodes. The batch is the same each time, so the
+// processor learns its branches: a floor for the kernel, not the walk's cost.
+func BenchmarkKernelOverRaw(b *testing.B) {
+	if !haveKernel {
+		b.Skip("no waveKernel on this architecture")
+	}
+	for _, d := range []int{1, 2, 3} {
+		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {
+			rng := rand.New(rand.NewPCG(1, 2))
+			batch := make([]brood, waveBatch)
+			for i := range batch {
+				batch[i] = brood{a: rng.Uint64(), b: rng.Uint64(), birth: 8 + 2*rng.Float64()}
+			}
+			out, leaves := make([]brood, 2*waveBatch), make([]vec, 2*waveBatch)
+			var slow [2 * waveBatch]uint32
+			c := waveConsts{horizon: 10, rate: 1, sigma: 1, lastCheck: -1}
+			ratio := make([]float64, b.N)
+			var sink float64
+			for i := 0; i < b.N; i++ {
+				t0 := time.Now()
+				for range 20 {
+					waveKernel(d, &batch[0], 2*waveBatch, &out[0], &leaves[0], &slow[0], &c)
+				}
+				t1 := time.Now()
+				sink += rawDraws(d, i*20*2*waveBatch, 20*2*waveBatch)
+				ratio[i] = float64(t1.Sub(t0)) / float64(time.Since(t1))
+			}
+			if sink == 0.5 {
+				b.Log(sink)
+			}
+			b.ReportMetric(median(ratio), "kernel/raw")
+		})
+	}
+}
