@@ -89,15 +89,8 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 		br := &batch[j/2]
 		k := childOf(br.a, br.b, int(j%2))
 		death, q := w.child3(k, br.birth, br.p, horizon)
-		leaf := int(math.Float64bits(horizon-death) >> 63) // as in fastStep
-		l := &leaves[lp]
-		l.x, l.y, l.z = q.x, q.y, q.z
-		lp += leaf
-		o := &out[sp]
-		o.a, o.b = k.mixes()
-		o.birth = death
-		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
-		sp += 1 - leaf
+		leaf := put(&leaves[lp], &out[sp], k, death, q, horizon)
+		sp, lp = sp+1-leaf, lp+leaf
 	}
 	return sp, lp
 }
@@ -139,20 +132,23 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, horizon floa
 		if !ok {
 			death, q = w.child3(k, br.birth, br.p, horizon)
 		}
-		// Both outcomes are written, field by field (a composite literal is copied
-		// in 16-byte moves that stall on the 8-byte stores just made); the counts
-		// say which one stands.
-		leaf := int(math.Float64bits(horizon-death) >> 63) // death > horizon
-		l := &leaves[lp]
-		l.x, l.y, l.z = q.x, q.y, q.z
-		lp += leaf
-		o := &out[sp]
-		o.a, o.b = k.mixes()
-		o.birth = death
-		o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
-		sp += 1 - leaf
+		leaf := put(&leaves[lp], &out[sp], k, death, q, horizon)
+		sp, lp = sp+1-leaf, lp+leaf
 	}
 	return sp, lp
+}
+
+// put writes a walked child, with key k, death and position q at min(death, horizon),
+// both as the leaf l and as the brood o, and returns 1 if it is a leaf (it lives past
+// the horizon), else 0: the caller moves on the count of the one that stands, so the
+// leaf test is no branch. Fields are written one by one (a composite literal is copied
+// in 16-byte moves that stall on the 8-byte stores just made).
+func put(l *vec, o *brood, k key, death float64, q vec, horizon float64) int {
+	l.x, l.y, l.z = q.x, q.y, q.z
+	o.a, o.b = k.mixes()
+	o.birth = death
+	o.p.x, o.p.y, o.p.z = q.x, q.y, q.z
+	return int(math.Float64bits(horizon-death) >> 63) // death > horizon
 }
 
 // child3 is one child of wave3 walked in full, as node walks it: its death and its
