@@ -138,14 +138,15 @@ func BenchmarkWalkOverRaw(b *testing.B) {
 	}
 }
 
+// median is the median of x (x is left as it is).
 func median(x []float64) float64 {
 	s := slices.Clone(x)
 	slices.Sort(s)
-	if n := len(s); n%2 == 1 {
+	n := len(s)
+	if n%2 == 1 {
 		return s[n/2]
-	} else {
-		return (s[n/2-1] + s[n/2]) / 2
 	}
+	return (s[n/2-1] + s[n/2]) / 2
 }
 
 // skeleton is a depth-first walk with everything but the keys, the lifetimes and the

@@ -13,14 +13,14 @@ type waveConsts struct {
 	divide                          int
 }
 
-// waveKernel1, 2 and 3 (and the Div versions) walk one step of the m = 2*len(broods) children of a batch of
-// binary broods in 1, 2 and 3 dimensions, as fastStep does: child j is child j%2 of
-// batch[j/2]. Each child that the fast paths take is written to out (a brood to walk
-// further) or to leaves; the others (a rejection step, a checkpoint cut, no time left
-// to move) are listed in slow by their number j, in increasing order, for the caller to
-// walk. They return the bytes written to out, leaves and slow. The coordinates past
-// the dimension are neither read nor written: they are 0 in every brood and leaf that
-// wave3 writes.
+// waveKernel1, 2 and 3 (and their Div versions) walk one step of the m children of a
+// batch of m/2 binary broods in 1, 2 and 3 dimensions, as fastStep does: child j is
+// child j%2 of batch[j/2]. Each child that the fast paths take is written to out (a
+// brood to walk further) or to leaves; the others (a rejection step, a checkpoint cut,
+// no time left to move) are listed in slow by their number j, in increasing order, for
+// the caller to walk. They return the bytes written to out, leaves and slow. The
+// coordinates past the dimension are neither read nor written: they are 0 in every
+// brood and leaf that wave3 writes.
 //
 //go:noescape
 func waveKernel1(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)

@@ -49,33 +49,33 @@
 	MULSD X10, X11; ADDSD X11, POS
 
 // func waveKernel1(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel1(SB), NOSPLIT, $32-72
+TEXT ·waveKernel1(SB), NOSPLIT, $16-72
 #include "wave_kernel_amd64.h"
 
 // func waveKernel1Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel1Div(SB), NOSPLIT, $32-72
+TEXT ·waveKernel1Div(SB), NOSPLIT, $16-72
 #define DIVIDE
 #include "wave_kernel_amd64.h"
 
 // func waveKernel2(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel2(SB), NOSPLIT, $32-72
+TEXT ·waveKernel2(SB), NOSPLIT, $16-72
 #define DIM2
 #include "wave_kernel_amd64.h"
 
 // func waveKernel2Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel2Div(SB), NOSPLIT, $32-72
+TEXT ·waveKernel2Div(SB), NOSPLIT, $16-72
 #define DIM2
 #define DIVIDE
 #include "wave_kernel_amd64.h"
 
 // func waveKernel3(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel3(SB), NOSPLIT, $32-72
+TEXT ·waveKernel3(SB), NOSPLIT, $16-72
 #define DIM2
 #define DIM3
 #include "wave_kernel_amd64.h"
 
 // func waveKernel3Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
-TEXT ·waveKernel3Div(SB), NOSPLIT, $32-72
+TEXT ·waveKernel3Div(SB), NOSPLIT, $16-72
 #define DIM2
 #define DIM3
 #define DIVIDE

@@ -14,7 +14,7 @@
 	SHRQ $1, BX
 	IMUL3Q $brood__size, BX, BX
 	ADDQ SI, BX
-	MOVQ BX, end-32(SP)
+	MOVQ BX, end-16(SP)
 	MOVQ out+16(FP), R8
 	MOVQ leaves+24(FP), R9
 	LEAQ ·zigE(SB), R11
@@ -52,7 +52,7 @@ child1:
 next:
 	ADDQ $brood__size, SI
 	ADDQ $2, DI
-	CMPQ SI, end-32(SP)
+	CMPQ SI, end-16(SP)
 	JLT loop
 
 done:
