@@ -206,7 +206,7 @@ func BenchmarkKernelOverRaw(b *testing.B) {
 			for i := 0; i < b.N; i++ {
 				t0 := time.Now()
 				for range 20 {
-					waveKernel(d, &batch[0], 2*waveBatch, &out[0], &leaves[0], &slow[0], &c)
+					waveKernel(d, false, &batch[0], 2*waveBatch, &out[0], &leaves[0], &slow[0], &c)
 				}
 				t1 := time.Now()
 				sink += rawDraws(d, i*20*2*waveBatch, 20*2*waveBatch)

@@ -78,12 +78,12 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	if w.k != 2 || !haveKernel || w.noKernel {
 		return w.fastStep(batch, out, leaves, horizon)
 	}
-	c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck, divide: 1}
+	c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck}
 	if w.invBetaExact {
-		c.rate, c.divide = w.invBeta, 0
+		c.rate = w.invBeta
 	}
 	var slow [2 * waveBatch]uint32
-	ob, lb, sb := waveKernel(w.d, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
+	ob, lb, sb := waveKernel(w.d, !w.invBetaExact, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
 	sp, lp = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{}))
 	for _, j := range slow[:sb/4] {
 		br := &batch[j/2]

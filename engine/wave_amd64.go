@@ -6,12 +6,9 @@ package engine
 const haveKernel = true
 
 // waveConsts is what waveKernel needs besides its batch: the horizon, the rate as it is
-// applied (1/beta to multiply by, or beta to divide by, as divide says), sigma and the
-// last checkpoint time.
-type waveConsts struct {
-	horizon, rate, sigma, lastCheck float64
-	divide                          int
-}
+// applied (1/beta to multiply by, or beta to divide by, as the kernel chosen does),
+// sigma and the last checkpoint time.
+type waveConsts struct{ horizon, rate, sigma, lastCheck float64 }
 
 // waveKernel1, 2 and 3 (and their Div versions) walk one step of the m children of a
 // batch of m/2 binary broods in 1, 2 and 3 dimensions, as fastStep does: child j is
@@ -40,19 +37,19 @@ func waveKernel3(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *
 //go:noescape
 func waveKernel3Div(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)
 
-// waveKernel is the waveKernel function for d dimensions and c's way of applying the
-// rate.
-func waveKernel(d int, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+// waveKernel is the waveKernel function for d dimensions that divides by the rate
+// (c.rate is beta) or multiplies by it (c.rate is 1/beta).
+func waveKernel(d int, divide bool, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
 	switch {
-	case d == 1 && c.divide == 0:
+	case d == 1 && !divide:
 		return waveKernel1(batch, m, out, leaves, slow, c)
 	case d == 1:
 		return waveKernel1Div(batch, m, out, leaves, slow, c)
-	case d == 2 && c.divide == 0:
+	case d == 2 && !divide:
 		return waveKernel2(batch, m, out, leaves, slow, c)
 	case d == 2:
 		return waveKernel2Div(batch, m, out, leaves, slow, c)
-	case c.divide == 0:
+	case !divide:
 		return waveKernel3(batch, m, out, leaves, slow, c)
 	}
 	return waveKernel3Div(batch, m, out, leaves, slow, c)

@@ -7,11 +7,8 @@ package engine
 // fastStep.
 const haveKernel = false
 
-type waveConsts struct {
-	horizon, rate, sigma, lastCheck float64
-	divide                          int
-}
+type waveConsts struct{ horizon, rate, sigma, lastCheck float64 }
 
-func waveKernel(d int, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+func waveKernel(d int, divide bool, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
 	panic("engine: waveKernel has no assembly on this architecture")
 }
