@@ -127,21 +127,34 @@ func TestNodeWordsLookIndependent(t *testing.T) {
 	}
 }
 
-// TestZigStrips: the fast paths' one-comparison tests (zigStrip.holds) agree with the
+// TestZigStrips: the fast paths' one-comparison tests (zigStrip.holds, and for the
+// normal also normal32, the 32-bit test of waveKernel's assembly) agree with the
 // tables' own, |j| < kn[i] for the normal and j < ke[i] for the exponential, at every
-// strip, for the integer parts at and next to each bound and at the extremes.
+// strip, for the integer parts at and within two of each bound and at the extremes of
+// int32 (where normal32's j + k - 1 is negative, it must wrap to a value no strip lets
+// stand).
 func TestZigStrips(t *testing.T) {
 	for i, k := range zigKn {
 		s := &zigN[i]
 		if s.w != float64(zigWn[i]) {
 			t.Fatalf("normal strip %d: width %v, table %v", i, s.w, zigWn[i])
 		}
-		for _, j := range []int64{0, 1, -1, int64(k) - 1, int64(k), int64(k) + 1, -int64(k) + 1, -int64(k), -int64(k) - 1, math.MaxInt32, math.MinInt32} {
+		js := []int64{math.MinInt32, math.MinInt32 + 1, math.MaxInt32 - 1, math.MaxInt32}
+		for _, c := range []int64{0, int64(k), -int64(k)} {
+			for dj := int64(-2); dj <= 2; dj++ {
+				js = append(js, c+dj)
+			}
+		}
+		for _, j := range js {
 			if j < math.MinInt32 || j > math.MaxInt32 {
 				continue
 			}
-			if got, want := s.holds(j), absInt32(int32(j)) < k; got != want {
+			want := absInt32(int32(j)) < k
+			if got := s.holds(j); got != want {
 				t.Fatalf("normal strip %d (k = %d), j = %d: holds %v, want %v", i, k, j, got, want)
+			}
+			if got := normal32(s, int32(j)); got != want {
+				t.Fatalf("normal strip %d (k = %d), j = %d: normal32 %v, want %v", i, k, j, got, want)
 			}
 		}
 	}
@@ -160,3 +173,7 @@ func TestZigStrips(t *testing.T) {
 		}
 	}
 }
+
+// normal32 is the test waveKernel's normals make of whether the ziggurat's fast path
+// stands for a draw with integer part j: one 32-bit comparison, uint32(j + off) < n.
+func normal32(s *zigStrip, j int32) bool { return uint32(j)+s.off < s.n }

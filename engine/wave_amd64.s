@@ -40,7 +40,7 @@
 // NORMAL draws the normal of the word in CX by the ziggurat's fast path (zigNormal)
 // and adds sd (X10) times it to POS; a draw that does not stand jumps to SLOW. The
 // test |j| < k is one 32-bit comparison, uint32(j + k - 1) < 2k - 1 (normal32,
-// TestNormal32): where j + k - 1 < 0 it wraps to at least 2^31 + k - 1 > 2k - 1, as
+// TestZigStrips): where j + k - 1 < 0 it wraps to at least 2^31 + k - 1 > 2k - 1, as
 // k < 2^31. Uses DX, R10 and X11.
 #define NORMAL(POS, SLOW) \
 	MOVQ CX, DX; SHRQ $32, DX; ANDL $0x7f, DX; SHLQ $4, DX; \

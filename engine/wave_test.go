@@ -217,36 +217,6 @@ func sameBits[T brood | vec](a, b T) bool {
 	return bytes.Equal(bitsOf(&a), bitsOf(&b))
 }
 
-// normal32 is the test waveKernel's normals make of whether the ziggurat's fast path
-// stands for a draw with integer part j: one 32-bit comparison, uint32(j + off) < n.
-func normal32(s *zigStrip, j int32) bool { return uint32(j)+s.off < s.n }
-
-// TestNormal32: normal32 agrees with zigStrip.holds for every strip of the normal's
-// ziggurat, at and around both ends of the range of standing draws and at the ends of
-// int32 (where j + off is negative, it must wrap to a value no strip lets stand).
-func TestNormal32(t *testing.T) {
-	for i := range zigN {
-		s := &zigN[i]
-		k := int64(zigKn[i])
-		for _, c := range []int64{0, k, -k} {
-			for dj := int64(-2); dj <= 2; dj++ {
-				j := c + dj
-				if j < math.MinInt32 || j > math.MaxInt32 {
-					continue
-				}
-				if normal32(s, int32(j)) != s.holds(j) {
-					t.Fatalf("strip %d (k = %d), j = %d: normal32 %v, holds %v", i, k, j, normal32(s, int32(j)), s.holds(j))
-				}
-			}
-		}
-		for _, j := range []int64{math.MinInt32, math.MinInt32 + 1, math.MaxInt32 - 1, math.MaxInt32} {
-			if normal32(s, int32(j)) != s.holds(j) {
-				t.Fatalf("strip %d (k = %d), j = %d: normal32 %v, holds %v", i, k, j, normal32(s, int32(j)), s.holds(j))
-			}
-		}
-	}
-}
-
 // TestLeavesNearTheEdges: leaves3, which takes no square root of leaves whose squared
 // radius shows they count in neither the histogram nor the top-K set, records leaves
 // as leaf does, one by one, for radii within 300 floats of the histogram's left edge,
