@@ -200,13 +200,13 @@ func BenchmarkKernelOverRaw(b *testing.B) {
 			}
 			out, leaves := make([]brood, 2*waveBatch), make([]vec, 2*waveBatch)
 			var slow [2 * waveBatch]uint32
-			c := waveConsts{horizon: 10, rate: 1, sigma: 1, lastCheck: -1}
+			c := waveConsts{horizon: 10, beta: 1, sigma: 1, lastCheck: -1, exp: &zigE[0], norm: &zigN[0]}
 			ratio := make([]float64, b.N)
 			var sink float64
 			for i := 0; i < b.N; i++ {
 				t0 := time.Now()
 				for range 20 {
-					waveKernel(d, false, &batch[0], 2*waveBatch, &out[0], &leaves[0], &slow[0], &c)
+					waveKernel(d, false, false, &batch[0], 2*waveBatch, &out[0], &leaves[0], &slow[0], &c)
 				}
 				t1 := time.Now()
 				sink += rawDraws(d, i*20*2*waveBatch, 20*2*waveBatch)

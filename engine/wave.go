@@ -2,6 +2,7 @@ package engine
 
 import (
 	"math"
+	"slices"
 	"unsafe"
 )
 
@@ -78,12 +79,10 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	if w.k != 2 || !haveKernel || w.noKernel {
 		return w.fastStep(batch, out, leaves, horizon)
 	}
-	c := waveConsts{horizon: horizon, rate: w.beta, sigma: w.sigma, lastCheck: w.lastCheck}
-	if w.invBetaExact {
-		c.rate = w.invBeta
-	}
+	c := waveConsts{horizon: horizon, beta: w.beta, sigma: w.sigma, lastCheck: w.lastCheck,
+		exp: w.expStrips, norm: w.normStrips}
 	var slow [2 * waveBatch]uint32
-	ob, lb, sb := waveKernel(w.d, !w.invBetaExact, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
+	ob, lb, sb := waveKernel(w.d, !w.foldRate, !w.foldSigma, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
 	sp, lp = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{}))
 	for _, j := range slow[:sb/4] {
 		br := &batch[j/2]
@@ -204,6 +203,29 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 		*r = &w.rng
 	}
 	return *r
+}
+
+// scaledStrips returns the strips t (zigE or zigN) with their widths times s, and true,
+// where a draw from them gives the same bits as the draw from t times s, and its
+// product by any time step's square root (the increment) the same bits as that of the
+// unscaled draw times s: for s a power of two from 2^-32 to 2^32. Scaling by a power
+// of two is exact while nothing leaves the normal range, and nothing does: widths lie
+// in (2^-36, 2^-28), draws below 2^32 widths, square roots of time steps in
+// [2^-537, 2^512]. For other s it returns t itself and false. waveKernel then takes the
+// lifetime's 1/beta, or the increment's sigma, from the strips, and a multiply leaves
+// the critical path of every child (TestWaveKernelMatchesLoop).
+func scaledStrips(t []zigStrip, s float64) (*zigStrip, bool) {
+	if frac, e := math.Frexp(s); frac != 0.5 || e < -31 || e > 33 {
+		return &t[0], false
+	}
+	if s == 1 {
+		return &t[0], true
+	}
+	c := slices.Clone(t)
+	for i := range c {
+		c[i].w *= s
+	}
+	return &c[0], true
 }
 
 // leafLists are leaves3's lists, kept by the walker rather than cleared at every batch.

@@ -32,22 +32,23 @@
 	XORPS X8, X8
 	CVTSQ2SD CX, X8
 	MULSD 0(R11)(DX*1), X8
-	// death = birth + e*(1/beta), or birth + e/beta
+	// death = birth + e/beta (e is already e*(1/beta) where the strips are scaled)
 #ifdef DIVIDE
 	DIVSD X5, X8
-#else
-	MULSD X5, X8
 #endif
 	ADDSD X0, X8
 	MOVSD X8, brood_birth(R8)
-	// dt = min(death, horizon) - birth, which must be > 0; sd = sigma*sqrt(dt)
+	// dt = min(death, horizon) - birth, which must be > 0; sd = sigma*sqrt(dt), or
+	// sqrt(dt) where the normal's strips are scaled by sigma
 	MOVSD X8, X9
 	MINSD X4, X9
 	SUBSD X0, X9
 	UCOMISD X12, X9
 	JLS SLOW
 	SQRTSD X9, X10
+#ifdef SIGMA
 	MULSD X6, X10
+#endif
 	// the normals: the low half; the spare bits; mix64(lo + normal2Gamma)
 	MOVSD brood_p+vec_x(SI), X1
 	MOVQ BX, CX

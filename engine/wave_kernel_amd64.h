@@ -1,10 +1,11 @@
 // The body of the waveKernel functions (wave_amd64.s): DIM2 is defined for 2
 // dimensions and more, DIM3 for 3, DIVIDE where the lifetime is e/beta rather than
-// e*(1/beta).
+// taken from strips scaled by 1/beta, SIGMA where the increment is multiplied by sigma
+// rather than taken from strips scaled by it.
 
 	MOVQ c+40(FP), AX
 	MOVSD waveConsts_horizon(AX), X4
-	MOVSD waveConsts_rate(AX), X5
+	MOVSD waveConsts_beta(AX), X5
 	MOVSD waveConsts_sigma(AX), X6
 	MOVSD waveConsts_lastCheck(AX), X7
 	MOVQ slow+32(FP), BX
@@ -17,8 +18,8 @@
 	MOVQ BX, end-16(SP)
 	MOVQ out+16(FP), R8
 	MOVQ leaves+24(FP), R9
-	LEAQ ·zigE(SB), R11
-	LEAQ ·zigN(SB), R12
+	MOVQ waveConsts_exp(AX), R11
+	MOVQ waveConsts_norm(AX), R12
 	MOVQ $0xbf58476d1ce4e5b9, R13
 	MOVQ $0x94d049bb133111eb, R14
 	XORPS X12, X12
@@ -98,4 +99,7 @@ cut:
 #endif
 #ifdef DIVIDE
 #undef DIVIDE
+#endif
+#ifdef SIGMA
+#undef SIGMA
 #endif

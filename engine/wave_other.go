@@ -7,8 +7,11 @@ package engine
 // fastStep.
 const haveKernel = false
 
-type waveConsts struct{ horizon, rate, sigma, lastCheck float64 }
+type waveConsts struct {
+	horizon, beta, sigma, lastCheck float64
+	exp, norm                       *zigStrip
+}
 
-func waveKernel(d int, divide bool, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
+func waveKernel(d int, divide, scale bool, batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int) {
 	panic("engine: waveKernel has no assembly on this architecture")
 }

@@ -139,8 +139,12 @@ func TestWaveKernelMatchesLoop(t *testing.T) {
 	}
 	rng := rand.New(rand.NewPCG(11, 12))
 	for d := 1; d <= 3; d++ {
-		for _, beta := range []float64{1, 0.25, 0.7, 3} {
-			c := Cell{Model: Model{Dim: d, Sigma: 1.3, Beta: beta, Children: 2}, Horizon: 5,
+		for _, ms := range [][2]float64{ // beta, sigma
+			{1, 1.3}, {0.25, 1.3}, {0.7, 1.3}, {3, 1.3}, {1, 1}, {0.25, 0.5}, {3, 4},
+			{0x1p40, 0x1p-40}, {0x1p-32, 0x1p32}, {0x1p33, 0x1p-33}, {0x1p-33, 0x1p33},
+		} {
+			beta, sigma := ms[0], ms[1]
+			c := Cell{Model: Model{Dim: d, Sigma: sigma, Beta: beta, Children: 2}, Horizon: 5,
 				Observe: Observe{Checkpoints: []float64{1, 2}}}.WithDefaults()
 			kernel, loop := newWalker(c), newWalker(c)
 			loop.noKernel = true
@@ -179,7 +183,7 @@ func TestWaveKernelMatchesLoop(t *testing.T) {
 				spK, lpK := kernel.step(batch, outK, leavesK)
 				spL, lpL := loop.step(batch, outL, leavesL)
 				if spK != spL || lpK != lpL {
-					t.Fatalf("d=%d beta=%v round %d: %d broods and %d leaves, against %d and %d", d, beta, round, spK, lpK, spL, lpL)
+					t.Fatalf("d=%d beta=%v sigma=%v round %d: %d broods and %d leaves, against %d and %d", d, beta, sigma, round, spK, lpK, spL, lpL)
 				}
 				sortBits(outK[:spK])
 				sortBits(outL[:spL])
@@ -187,16 +191,16 @@ func TestWaveKernelMatchesLoop(t *testing.T) {
 				sortBits(leavesL[:lpL])
 				for i := range spK {
 					if !sameBits(outK[i], outL[i]) {
-						t.Fatalf("d=%d beta=%v round %d: brood %d is %+v, against %+v", d, beta, round, i, outK[i], outL[i])
+						t.Fatalf("d=%d beta=%v sigma=%v round %d: brood %d is %+v, against %+v", d, beta, sigma, round, i, outK[i], outL[i])
 					}
 				}
 				for i := range lpK {
 					if !sameBits(leavesK[i], leavesL[i]) {
-						t.Fatalf("d=%d beta=%v round %d: leaf %d is %+v, against %+v", d, beta, round, i, leavesK[i], leavesL[i])
+						t.Fatalf("d=%d beta=%v sigma=%v round %d: leaf %d is %+v, against %+v", d, beta, sigma, round, i, leavesK[i], leavesL[i])
 					}
 				}
 				if !bytes.Equal(kernel.part.AppendBinary(nil), loop.part.AppendBinary(nil)) {
-					t.Fatalf("d=%d beta=%v round %d: the checkpoint sums differ", d, beta, round)
+					t.Fatalf("d=%d beta=%v sigma=%v round %d: the checkpoint sums differ", d, beta, sigma, round)
 				}
 			}
 		}
