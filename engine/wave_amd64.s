@@ -41,15 +41,16 @@
 	MOVQ AX, CX; SHRQ $27, CX; XORQ CX, AX; IMULQ R14, AX; \
 	MOVQ AX, CX; SHRQ $31, CX; XORQ CX, AX
 
-// NORMAL draws the normal of the word in CX by the ziggurat's fast path (zigNormal)
-// and adds sd (X10) times it to POS; a draw that does not stand jumps to SLOW. The
-// test |j| < k is one 32-bit comparison, uint32(j + k - 1) < 2k - 1 (normal32,
+// NORMAL draws the normal of the word in WORD (which it leaves as it is) by the
+// ziggurat's fast path (zigNormal) and adds sd (X10) times it to POS; a draw that does
+// not stand jumps to SLOW. The strip's offset is (WORD>>32 & 0x7f) * 16. The test
+// |j| < k is one 32-bit comparison, uint32(j + k - 1) < 2k - 1 (normal32,
 // TestZigStrips): where j + k - 1 < 0 it wraps to at least 2^31 + k - 1 > 2k - 1, as
 // k < 2^31. Uses DX, R10 and X11.
-#define NORMAL(POS, SLOW) \
-	MOVQ CX, DX; SHRQ $32, DX; ANDL $0x7f, DX; SHLQ $4, DX; \
-	MOVL CX, R10; ADDL 8(R12)(DX*1), R10; CMPL R10, 12(R12)(DX*1); JCC SLOW; \
-	XORPS X11, X11; CVTSL2SD CX, X11; MULSD 0(R12)(DX*1), X11; \
+#define NORMAL(WORD, POS, SLOW) \
+	MOVQ WORD, DX; SHRQ $28, DX; ANDL $0x7f0, DX; \
+	MOVL WORD, R10; ADDL 8(R12)(DX*1), R10; CMPL R10, 12(R12)(DX*1); JCC SLOW; \
+	XORPS X11, X11; CVTSL2SD WORD, X11; MULSD 0(R12)(DX*1), X11; \
 	MULSD X10, X11; ADDSD X11, POS
 
 // func waveKernel1(batch *brood, m int, out *brood, leaves *vec, slow *uint32, c *waveConsts) (outBytes, leafBytes, slowBytes int)

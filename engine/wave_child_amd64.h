@@ -23,9 +23,8 @@
 	MOVQ DX, brood_b(R8)
 	// the lifetime's exponential from the high half (zigExp)
 	MOVQ AX, DX
-	SHRQ $32, DX
-	MOVBQZX DL, DX
-	SHLQ $4, DX
+	SHRQ $28, DX
+	ANDL $0xff0, DX // uint8(AX>>32) * 16, the strip's offset
 	MOVL AX, CX
 	CMPL CX, 12(R11)(DX*1)
 	JCC SLOW
@@ -51,8 +50,7 @@
 #endif
 	// the normals: the low half; the spare bits; mix64(lo + normal2Gamma)
 	MOVSD brood_p+vec_x(SI), X1
-	MOVQ BX, CX
-	NORMAL(X1, SLOW)
+	NORMAL(BX, X1, SLOW)
 #ifdef DIM2
 	MOVSD brood_p+vec_y(SI), X2
 	MOVQ AX, CX
@@ -61,15 +59,14 @@
 	SHRQ $39, DX
 	SHLQ $24, DX
 	ORQ DX, CX
-	NORMAL(X2, SLOW)
+	NORMAL(CX, X2, SLOW)
 #endif
 #ifdef DIM3
 	MOVSD brood_p+vec_z(SI), X3
 	MOVQ $0xb47c73972972b7b6, AX
 	ADDQ BX, AX
 	MIX1
-	MOVQ AX, CX
-	NORMAL(X3, SLOW)
+	NORMAL(AX, X3, SLOW)
 #endif
 	// leaf or brood
 	MOVSD X1, vec_x(R9)
