@@ -230,59 +230,54 @@ func scaledStrips(t []zigStrip, s float64) (*zigStrip, bool) {
 
 // leafLists are leaves3's lists, kept by the walker rather than cleared at every batch.
 type leafLists struct {
-	sq         [2 * waveBatch]float64 // squared radii
-	need, tops [2 * waveBatch]uint16  // leaves that can count; leaves worth offering
+	need, tops [2 * waveBatch]uint16 // leaves that can count; leaves worth offering
 }
 
 // leaves3 records leaves of wave3 (as leaf does one of node's), and polls the done
 // channel when the population passes a multiple of pollLeaves.
 //
 // Most leaves lie far inside, left of the histogram and below the least top-K radius:
-// their records change nothing but the population. So a first loop takes each leaf's
-// squared radius and lists those at or above w.needSquare (no leaf below it can count),
-// without a branch, and only the listed leaves have their radius's square root taken
-// and are counted in the histogram. The second loop calls nothing, so that the
-// histogram's constants stay in registers: the leaves worth offering to the top-K set
-// (at least its least radius as the batch began) are noted and offered after it.
-// Offering them later changes nothing: the set keeps the K largest, whatever the order
-// they come in. A batch has at most k*max(1, 2*waveBatch/k) <= 2*waveBatch leaves, the
-// size of the lists.
+// their records change nothing but the population. So a first loop lists, without a
+// branch, the leaves whose radius may reach w.needRadius (no leaf below it can count),
+// testing |x| in one dimension and the squared radius in more, and only the listed
+// leaves have their radius's square root taken and are counted in the histogram. The
+// second loop calls nothing, so that the histogram's constants stay in registers: the
+// leaves worth offering to the top-K set (at least its least radius as the batch began)
+// are noted and offered after it. Offering them later changes nothing: the set keeps
+// the K largest, whatever the order they come in. A batch has at most
+// k*max(1, 2*waveBatch/k) <= 2*waveBatch leaves, the size of the lists.
 func (w *walker) leaves3(ls []vec) {
 	before := w.part.pop
 	w.part.pop += uint64(len(ls))
 	if w.leafLists == nil {
 		w.leafLists = new(leafLists)
 	}
-	sq, need, tops := &w.leafLists.sq, &w.leafLists.need, &w.leafLists.tops
-	least := w.needSquare()
+	need, tops := &w.leafLists.need, &w.leafLists.tops
+	t := w.needRadius()
 	nn := 0
-	// square's x² + y² + z², with the terms known to be +0 left out (adding +0 to a
-	// square changes no bit)
 	switch w.d {
 	case 1:
+		// The radius, √(x²), is |x| or within a unit in the last place of it.
 		for i := range ls {
-			s := ls[i].x * ls[i].x
-			sq[i&(len(sq)-1)] = s
 			need[nn&(len(need)-1)] = uint16(i)
-			if s >= least {
+			if math.Abs(ls[i].x) >= t {
 				nn++
 			}
 		}
 	case 2:
+		least := t * t
 		for i := range ls {
 			s := float64(ls[i].x*ls[i].x) + float64(ls[i].y*ls[i].y)
-			sq[i&(len(sq)-1)] = s
 			need[nn&(len(need)-1)] = uint16(i)
 			if s >= least {
 				nn++
 			}
 		}
 	default:
+		least := t * t
 		for i := range ls {
-			s := ls[i].square()
-			sq[i&(len(sq)-1)] = s
 			need[nn&(len(need)-1)] = uint16(i)
-			if s >= least {
+			if ls[i].square() >= least {
 				nn++
 			}
 		}
@@ -290,7 +285,7 @@ func (w *walker) leaves3(ls []vec) {
 	hist, bins, floor := w.hist, w.bins, w.topFloor
 	nt := 0
 	for _, i := range need[:nn] {
-		r := math.Sqrt(sq[int(i)&(len(sq)-1)]) // ls[i].radius()
+		r := ls[i].radius()
 		hist[bins.slot(r)]++
 		tops[nt&(len(tops)-1)] = i
 		if r >= floor {
@@ -305,17 +300,17 @@ func (w *walker) leaves3(ls []vec) {
 	}
 }
 
-// needSquare is the squared radius below which a leaf surely counts in neither the
-// histogram (its radius is left of the histogram's edge, w.leftEdge) nor the top-K set
-// (its radius is below the least kept, w.topFloor), or 0 while every leaf may count.
-// The two bounds are taken 2^-30 of themselves lower, so that the rounding of the
-// square, of the square root and of the histogram's bin (a few units in the last place)
-// cannot move a leaf across them.
-func (w *walker) needSquare() float64 {
+// needRadius is the radius below which a leaf surely counts in neither the histogram
+// (its radius is left of the histogram's edge, w.leftEdge) nor the top-K set (its
+// radius is below the least kept, w.topFloor), or 0 while every leaf may count. The two
+// bounds are taken 2^-30 of themselves lower, so that the rounding of the square, of
+// the square root and of the histogram's bin (a few units in the last place) cannot
+// move a leaf across them.
+func (w *walker) needRadius() float64 {
 	const shrink = 1 - 0x1p-30
 	t := min(w.leftEdge, w.topFloor) * shrink
 	if !(t > 0) {
 		return 0
 	}
-	return t * t
+	return t
 }
