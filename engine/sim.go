@@ -66,6 +66,8 @@ type walker struct {
 	// foldSigma, else zigN
 	expStrips, normStrips *zigStrip
 	foldRate, foldSigma   bool
+	// slowList is the list of children waveKernel leaves to step (see step)
+	slowList [2 * waveBatch]uint32
 	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
 	// walks
 	stack     []brood

@@ -81,7 +81,7 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 	}
 	c := waveConsts{horizon: horizon, beta: w.beta, sigma: w.sigma, lastCheck: w.lastCheck,
 		exp: w.expStrips, norm: w.normStrips}
-	var slow [2 * waveBatch]uint32
+	slow := &w.slowList // kept by the walker, so that it is not zeroed at every batch
 	ob, lb, sb := waveKernel(w.d, !w.foldRate, !w.foldSigma, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
 	sp, lp = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{}))
 	for _, j := range slow[:sb/4] {
