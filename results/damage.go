@@ -64,7 +64,9 @@ var verifySink atomic.Uint32
 // does before it plans or resumes a sweep. It reads the whole file once.
 //
 // Before any cursor moves, walkTree checks the trees' shape from the file itself: a
-// branch page that leads back to itself would send bbolt's cursor down without end.
+// branch page that leads back to itself would send bbolt's cursor down without end. It
+// also checks that the free-page list names no page of the trees, none twice and none
+// outside the file: the next write would be handed such a page and overwrite it.
 //
 // The layout check: the pages in use, each with the overflow pages its header counts,
 // and the free pages must follow one another to the end of the file. It catches a

@@ -219,3 +219,70 @@ func flipped(data []byte, at int) []byte {
 	}
 	return bad
 }
+
+// A free-page list that names a page in use is damage that Verify reports: bbolt trusts
+// the list, and the next write would be given that page and overwrite what it holds. A
+// list naming a page past the end of the file is reported as well. The store has free
+// pages from a second commit; the first id on its list is replaced.
+func TestFreeListNamingALivePage(t *testing.T) {
+	dir := t.TempDir()
+	path := filepath.Join(dir, "two.db")
+	c := testCell()
+	st, err := Create(path, []byte("free list test"))
+	if err != nil {
+		t.Fatal(err)
+	}
+	for _, from := range []uint64{0, 40} {
+		if err := st.Commit([]TaskResult{{CellID: "cell", Cell: c, Seed: 1, From: from, Records: records(t, c, 1, from, from+40), KeepRecords: true}}, nil); err != nil {
+			t.Fatal(err)
+		}
+	}
+	st.Close()
+	data, err := os.ReadFile(path)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The newest meta page (layout as in TestDamagedOpenReleasesTheFile): the root
+	// bucket's page, which is in use, and the free-page list's page.
+	const page = 4096
+	var root, list, hwm, newest uint64
+	for m := range 2 {
+		meta := data[m*page+16:]
+		if txid := binary.LittleEndian.Uint64(meta[48:]); txid >= newest {
+			root, list, hwm, newest = binary.LittleEndian.Uint64(meta[16:]), binary.LittleEndian.Uint64(meta[32:]), binary.LittleEndian.Uint64(meta[40:]), txid
+		}
+	}
+	at := int(list)*page + 16 // the first id, after the page header (count < 0xFFFF)
+	if n := binary.LittleEndian.Uint16(data[int(list)*page+10:]); n == 0 || n == 0xFFFF || root < 2 {
+		t.Fatalf("no short free-page list to damage (%d ids; root page %d)", n, root)
+	}
+	for _, tc := range []struct {
+		id   uint64
+		want string
+	}{{root, "which is in use"}, {hwm + 5, "outside the file"}} {
+		bad := append([]byte(nil), data...)
+		binary.LittleEndian.PutUint64(bad[at:], tc.id)
+		p := filepath.Join(dir, fmt.Sprintf("bad%d.db", tc.id))
+		if err := os.WriteFile(p, bad, 0o644); err != nil {
+			t.Fatal(err)
+		}
+		st, err := Open(p, false)
+		if err != nil {
+			t.Fatalf("page %d on the free-page list: the store should open: %v", tc.id, err)
+		}
+		err = st.Verify()
+		st.Close()
+		if err == nil || !strings.Contains(err.Error(), tc.want) || !strings.Contains(err.Error(), "free-page list") {
+			t.Errorf("page %d on the free-page list: Verify says %v", tc.id, err)
+		}
+	}
+	// The undamaged store passes.
+	st, err = Open(path, false)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer st.Close()
+	if err := st.Verify(); err != nil {
+		t.Fatalf("the undamaged store: %v", err)
+	}
+}

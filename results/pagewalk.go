@@ -9,7 +9,8 @@ import (
 // walkTree checks the shape of a bbolt file's B+trees before anything follows them:
 // from the root bucket of the meta page of transaction txid, every branch page's
 // children and every bucket's root must be pages of the file, of the right type, each
-// reached once. bbolt's cursors trust this: a branch page that names itself or an
+// reached once; then that transaction's free-page list must name none of them
+// (freePages). bbolt's cursors trust the trees: a branch page that names itself or an
 // ancestor sends a cursor down without end, until the process runs out of memory, which
 // no guard can catch. It reads the file with ReadAt, so damage anywhere is an error here.
 //
@@ -48,7 +49,42 @@ func walkTree(path string, txid uint64) error {
 		return fmt.Errorf("no meta page of transaction %d", txid)
 	}
 	w := treeWalk{f: f, ps: ps, hwm: meta.hwm, seen: make([]uint64, meta.hwm/64+1)}
-	return w.bucket(meta.root, "root")
+	if err := w.bucket(meta.root, "root"); err != nil {
+		return err
+	}
+	return w.freePages(meta.freelist)
+}
+
+// freePages checks the free-page list of the same transaction against the trees just
+// walked: every page it names must lie in the file, be named once, and be used by no
+// tree. bbolt trusts the list: a live page on it is handed out again by the next write,
+// which overwrites that page's data. The ids are read a chunk at a time, so a damaged
+// count costs no memory.
+func (w *treeWalk) freePages(list uint64) error {
+	count, start, err := freelistHeader(w.f, w.ps, list, w.hwm)
+	if err != nil {
+		return fmt.Errorf("the free-page list %v", err)
+	}
+	buf := make([]byte, 8*1024)
+	for done := uint64(0); done < count; {
+		n := min(count-done, uint64(len(buf)/8))
+		b := buf[:8*n]
+		if _, err := w.f.ReadAt(b, int64(list*w.ps+start+8*done)); err != nil {
+			return err
+		}
+		for i := range n {
+			id := binary.LittleEndian.Uint64(b[8*i:])
+			switch {
+			case id < 2 || id >= w.hwm:
+				return fmt.Errorf("the free-page list names page %d, outside the file's %d", id, w.hwm)
+			case w.seen[id/64]&(1<<(id%64)) != 0:
+				return fmt.Errorf("the free-page list names page %d, which is in use or named twice", id)
+			}
+			w.seen[id/64] |= 1 << (id % 64)
+		}
+		done += n
+	}
+	return nil
 }
 
 type treeWalk struct {

@@ -76,37 +76,47 @@ func readMetaPage(b []byte) (metaPage, bool) {
 
 // checkFreelist checks the header of the free-page list's page, which bbolt reads while
 // opening a store for writing and trusts: damage there panics inside bbolt's Open, where
-// the file stays locked (its mapping holds the lock) until the process exits. Page
-// header: id u64, flags u16 (0x10 for this page), count u16, overflow u32; a count of
-// 0xFFFF means the count is the first u64 after the header; then the page ids, u64 each.
+// the file stays locked (its mapping holds the lock) until the process exits.
 func checkFreelist(f *os.File, path string, ps, freelist, hwm uint64) error {
-	const none = ^uint64(0) // a store that keeps no free-page list
-	if freelist == none {
-		return nil
+	if _, _, err := freelistHeader(f, ps, freelist, hwm); err != nil {
+		return fmt.Errorf("%s is damaged (its free-page list %v): restore it from a copy", path, err)
 	}
-	damaged := func(what string) error {
-		return fmt.Errorf("%s is damaged (its free-page list %s): restore it from a copy", path, what)
+	return nil
+}
+
+// noFreelist is the free-page list's page in the meta page of a store that keeps none.
+const noFreelist = ^uint64(0)
+
+// freelistHeader reads and checks the header of the free-page list's page list in a file
+// of hwm pages of ps bytes, and returns the number of page ids on the list and the
+// offset of the first in the page (0, 0 for a store that keeps no list). Page header: id
+// u64, flags u16 (0x10 for this page), count u16, overflow u32; a count of 0xFFFF means
+// the count is the first u64 after the header; then the page ids, u64 each. The error
+// says what is wrong, for a sentence about the list.
+func freelistHeader(f *os.File, ps, list, hwm uint64) (count, start uint64, err error) {
+	if list == noFreelist {
+		return 0, 0, nil
 	}
-	if freelist < 2 || freelist >= hwm {
-		return damaged(fmt.Sprintf("is said to be page %d of %d", freelist, hwm))
+	if list < 2 || list >= hwm {
+		return 0, 0, fmt.Errorf("is said to be page %d of %d", list, hwm)
 	}
 	h := make([]byte, 24)
-	if _, err := f.ReadAt(h, int64(freelist*ps)); err != nil {
-		return damaged(err.Error())
+	if _, err := f.ReadAt(h, int64(list*ps)); err != nil {
+		return 0, 0, err
 	}
 	id, flags := binary.LittleEndian.Uint64(h), binary.LittleEndian.Uint16(h[8:])
 	count, overflow := uint64(binary.LittleEndian.Uint16(h[10:])), uint64(binary.LittleEndian.Uint32(h[12:]))
-	start := uint64(16)
+	start = 16
 	if count == 0xFFFF {
 		count, start = binary.LittleEndian.Uint64(h[16:]), 24
 	}
 	switch {
-	case id != freelist || flags != 0x10:
-		return damaged(fmt.Sprintf("page %d has the header of page %d, type %#x", freelist, id, flags))
-	case overflow >= hwm-freelist || count > ((overflow+1)*ps-start)/8:
-		return damaged(fmt.Sprintf("page %d claims %d ids on %d pages", freelist, count, overflow+1))
+	case id != list || flags != 0x10:
+		return 0, 0, fmt.Errorf("page %d has the header of page %d, type %#x", list, id, flags)
+	case overflow >= hwm-list || count > ((overflow+1)*ps-start)/8:
+		return 0, 0, fmt.Errorf("page %d claims %d ids on %d pages", list, count, overflow+1)
 	}
-	return nil
+	return count, start, nil
 }
 
 // boltMagic is the number at byte 16 of every bbolt meta page.
