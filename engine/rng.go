@@ -102,15 +102,21 @@ const normal2Gamma = 0xb47c73972972b7b6
 
 // zigNormal is the ziggurat's fast path on word u: the normal and whether it stands;
 // if not, the draw is normSlow(u) instead.
-func zigNormal(u uint64) (float64, bool) {
-	j, s := int32(u), &zigN[u>>32&0x7F]
+func zigNormal(u uint64) (float64, bool) { return zigNormalFrom(&zigN, u) }
+
+// zigNormalFrom is zigNormal from the strips t: zigN, or a copy scaled by scaledStrips.
+func zigNormalFrom(t *[128]zigStrip, u uint64) (float64, bool) {
+	j, s := int32(u), &t[u>>32&0x7F]
 	return float64(j) * s.w, s.holds(int64(j))
 }
 
 // zigExp is the ziggurat's fast path for the exponential on word u: the value and
 // whether it stands; if not, the draw is expSlow(u) instead.
-func zigExp(u uint64) (float64, bool) {
-	j, s := uint32(u), &zigE[uint8(u>>32)]
+func zigExp(u uint64) (float64, bool) { return zigExpFrom(&zigE, u) }
+
+// zigExpFrom is zigExp from the strips t: zigE, or a copy scaled by scaledStrips.
+func zigExpFrom(t *[256]zigStrip, u uint64) (float64, bool) {
+	j, s := uint32(u), &t[uint8(u>>32)]
 	return float64(j) * s.w, s.holds(int64(j))
 }
 

@@ -61,11 +61,12 @@ type walker struct {
 	// lastCheck: the last checkpoint time (-1 if none); a node born after it has no
 	// checkpoint to cut its path at
 	lastCheck float64
-	// waveKernel's ziggurat strips (see scaledStrips): the exponential's with widths
+	// the fast paths' ziggurat strips (see scaledStrips): the exponential's with widths
 	// times 1/beta if foldRate, else zigE; the normal's with widths times sigma if
 	// foldSigma, else zigN
-	expStrips, normStrips *zigStrip
-	foldRate, foldSigma   bool
+	expTab              *[256]zigStrip
+	normTab             *[128]zigStrip
+	foldRate, foldSigma bool
 	// slowList is the list of children waveKernel leaves to step (see step)
 	slowList [2 * waveBatch]uint32
 	// stack and leafBuf are wave3's pending broods and a batch's leaves, kept between
@@ -93,8 +94,9 @@ func newWalker(c Cell) *walker {
 	if frac, _ := math.Frexp(m.Beta); frac == 0.5 {
 		w.invBeta, w.invBetaExact = 1/m.Beta, true
 	}
-	w.expStrips, w.foldRate = scaledStrips(zigE[:], 1/m.Beta)
-	w.normStrips, w.foldSigma = scaledStrips(zigN[:], m.Sigma)
+	e, n := zigE, zigN
+	w.foldRate, w.foldSigma = scaledStrips(e[:], 1/m.Beta), scaledStrips(n[:], m.Sigma)
+	w.expTab, w.normTab = &e, &n
 	w.bins.lastBin = float64(w.nBins - 1)
 	// The histogram's left edge as a radius, where leaves3 may leave radii below it
 	// uncounted: not where the edge is so small against the centre that the rounding

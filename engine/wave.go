@@ -2,7 +2,6 @@ package engine
 
 import (
 	"math"
-	"slices"
 	"unsafe"
 )
 
@@ -80,7 +79,7 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 		return w.fastStep(batch, out, leaves, horizon)
 	}
 	c := waveConsts{horizon: horizon, beta: w.beta, sigma: w.sigma, lastCheck: w.lastCheck,
-		exp: w.expStrips, norm: w.normStrips}
+		exp: &w.expTab[0], norm: &w.normTab[0]}
 	slow := &w.slowList // kept by the walker, so that it is not zeroed at every batch
 	ob, lb, sb := waveKernel(w.d, !w.foldRate, !w.foldSigma, &batch[0], 2*len(batch), &out[0], &leaves[0], &slow[0], &c)
 	sp, lp = ob/int(unsafe.Sizeof(brood{})), lb/int(unsafe.Sizeof(vec{}))
@@ -101,6 +100,7 @@ func (w *walker) step(batch []brood, out []brood, leaves []vec) (sp, lp int) {
 func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, horizon float64) (sp, lp int) {
 	d, kids := w.d, w.k
 	sigma, lastCheck := w.sigma, w.lastCheck
+	expTab, normTab, foldRate, foldSigma := w.expTab, w.normTab, w.foldRate, w.foldSigma
 	// One loop over the batch's nodes, not a loop per brood: a short inner loop's exit
 	// is a branch the processor may mispredict once per brood.
 	for j := range kids * len(batch) {
@@ -110,21 +110,28 @@ func (w *walker) fastStep(batch []brood, out []brood, leaves []vec, horizon floa
 		}
 		br := &batch[bi]
 		k := childOf(br.a, br.b, c)
-		e, ok := zigExp(k.hi)
-		death := br.birth + w.perRate(e)
+		// e and z are scaled by 1/beta and sigma where the strips are (scaledStrips)
+		e, ok := zigExpFrom(expTab, k.hi)
+		if !foldRate {
+			e = w.perRate(e)
+		}
+		death := br.birth + e
 		dt := min(death, horizon) - br.birth
-		sd := sigma * math.Sqrt(dt)
-		z, ok0 := zigNormal(k.lo)
+		sd := math.Sqrt(dt)
+		if !foldSigma {
+			sd *= sigma
+		}
+		z, ok0 := zigNormalFrom(normTab, k.lo)
 		q := br.p
 		q.x += float64(sd * z)
 		ok = ok && ok0 && dt > 0 && br.birth > lastCheck
 		if d > 1 {
-			z, ok1 := zigNormal(spareWord(k))
+			z, ok1 := zigNormalFrom(normTab, spareWord(k))
 			q.y += float64(sd * z)
 			ok = ok && ok1
 		}
 		if d > 2 {
-			z, ok2 := zigNormal(mix64(k.lo + normal2Gamma))
+			z, ok2 := zigNormalFrom(normTab, mix64(k.lo+normal2Gamma))
 			q.z += float64(sd * z)
 			ok = ok && ok2
 		}
@@ -205,27 +212,24 @@ func (w *walker) rejections(k key, r **nodeRand) *nodeRand {
 	return *r
 }
 
-// scaledStrips returns the strips t (zigE or zigN) with their widths times s, and true,
-// where a draw from them gives the same bits as the draw from t times s, and its
-// product by any time step's square root (the increment) the same bits as that of the
-// unscaled draw times s: for s a power of two from 2^-32 to 2^32. Scaling by a power
-// of two is exact while nothing leaves the normal range, and nothing does: widths lie
-// in (2^-36, 2^-28), draws below 2^32 widths, square roots of time steps in
-// [2^-537, 2^512]. For other s it returns t itself and false. waveKernel then takes the
-// lifetime's 1/beta, or the increment's sigma, from the strips, and a multiply leaves
-// the critical path of every child (TestWaveKernelMatchesLoop).
-func scaledStrips(t []zigStrip, s float64) (*zigStrip, bool) {
+// scaledStrips scales the widths of the strips t (a copy of zigE or zigN) by s, and
+// returns true, where a draw from them gives the same bits as the draw from the
+// unscaled strips times s, and its product by any time step's square root (the
+// increment) the same bits as that of the unscaled draw times s: for s a power of two
+// from 2^-32 to 2^32. Scaling by a power of two is exact while nothing leaves the normal
+// range, and nothing does: widths lie in (2^-36, 2^-28), draws below 2^32 widths, square
+// roots of time steps in [2^-537, 2^512]. For other s it leaves t as it is and returns
+// false. The fast paths then take the lifetime's 1/beta, or the increment's sigma, from
+// the strips, and a multiply leaves the critical path of every child
+// (TestWaveKernelMatchesLoop, TestWaveMatchesNode).
+func scaledStrips(t []zigStrip, s float64) bool {
 	if frac, e := math.Frexp(s); frac != 0.5 || e < -31 || e > 33 {
-		return &t[0], false
+		return false
 	}
-	if s == 1 {
-		return &t[0], true
+	for i := range t {
+		t[i].w *= s
 	}
-	c := slices.Clone(t)
-	for i := range c {
-		c[i].w *= s
-	}
-	return &c[0], true
+	return true
 }
 
 // leafLists are leaves3's lists, kept by the walker rather than cleared at every batch.

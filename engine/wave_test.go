@@ -13,7 +13,7 @@ import (
 // TestWaveMatchesNode: the batched walk for d <= 3 (wave3) gives the same parts, byte
 // for byte, as the depth-first general walk (node) on cells that reach every branch of
 // it: binary and ternary branching, beta a power of two and not (division against
-// multiplication), checkpoints (cut through advance), a small top-K (many offers),
+// multiplication), beta and sigma taken from scaled strips and not, checkpoints (cut through advance), a small top-K (many offers),
 // splits into subtree ranges, a horizon of 0.4 that leaves the root a leaf in many
 // replicates, and one of 9.5 where most leaves lie left of the histogram. Deterministic.
 func TestWaveMatchesNode(t *testing.T) {
@@ -21,6 +21,7 @@ func TestWaveMatchesNode(t *testing.T) {
 		{Sigma: 1, Beta: 1, Children: 2},
 		{Sigma: 2, Beta: 0.5, Children: 3},
 		{Sigma: 0.7, Beta: 0.7, Children: 2},
+		{Sigma: 0.5, Beta: 0.5, Children: 2}, // strips scaled by both (scaledStrips)
 		{Sigma: 1.3, Beta: 0.1, Children: 9}, // 28 broods per batch
 	}
 	for d := 1; d <= 3; d++ {
