@@ -108,9 +108,7 @@ func rawDraws(d, from, n int) float64 {
 // node and of their ratio, and the median ratio over the quarter of iterations where
 // the machine was quietest (quiet-walk/raw): where a fixed batch of 4,096 raw draws,
 // timed just before the pair, was fastest. (Choosing by the pair's own raw time would
-// favour pairs whose raw time came out low by chance.) The ratio is higher when the
-// machine is quiet: other work on the core slows the raw draws, which keep it busiest,
-// the more.
+// favour pairs whose raw time came out low by chance, and overstate the ratio.)
 func BenchmarkWalkOverRaw(b *testing.B) {
 	for _, d := range []int{1, 2, 3} {
 		b.Run(fmt.Sprintf("d=%d", d), func(b *testing.B) {

@@ -13,9 +13,10 @@ import (
 // TestWaveMatchesNode: the batched walk for d <= 3 (wave3) gives the same parts, byte
 // for byte, as the depth-first general walk (node) on cells that reach every branch of
 // it: binary and ternary branching, beta a power of two and not (division against
-// multiplication), beta and sigma taken from scaled strips and not, checkpoints (cut through advance), a small top-K (many offers),
-// splits into subtree ranges, a horizon of 0.4 that leaves the root a leaf in many
-// replicates, and one of 9.5 where most leaves lie left of the histogram. Deterministic.
+// multiplication), beta and sigma taken from scaled strips and not, checkpoints (cut
+// through advance), a small top-K (many offers), splits into subtree ranges, a horizon
+// of 0.4 that leaves the root a leaf in many replicates, and one of 9.5 where most
+// leaves lie left of the histogram. Deterministic.
 func TestWaveMatchesNode(t *testing.T) {
 	models := []Model{
 		{Sigma: 1, Beta: 1, Children: 2},
