@@ -287,9 +287,16 @@ func (w *walker) leaves3(ls []vec) {
 		}
 	}
 	hist, bins, floor := w.hist, w.bins, w.topFloor
+	// In one dimension the radius √(x²) is |x| exactly while x² neither underflows nor
+	// overflows (TestRootOfSquare): for every listed leaf once t is at least 2^-511, and
+	// below 2^511, past which the square root is taken.
+	abs := w.d == 1 && t >= 0x1p-511
 	nt := 0
 	for _, i := range need[:nn] {
-		r := ls[i].radius()
+		r := math.Abs(ls[i].x)
+		if !abs || r >= 0x1p511 {
+			r = ls[i].radius()
+		}
 		hist[bins.slot(r)]++
 		tops[nt&(len(tops)-1)] = i
 		if r >= floor {
