@@ -77,10 +77,9 @@ func (w *treeWalk) freePages(list uint64) error {
 			switch {
 			case id < 2 || id >= w.hwm:
 				return fmt.Errorf("the free-page list names page %d, outside the file's %d", id, w.hwm)
-			case w.seen[id/64]&(1<<(id%64)) != 0:
+			case w.reached(id):
 				return fmt.Errorf("the free-page list names page %d, which is in use or named twice", id)
 			}
-			w.seen[id/64] |= 1 << (id % 64)
 		}
 		done += n
 	}
@@ -91,6 +90,13 @@ type treeWalk struct {
 	f       *os.File
 	ps, hwm uint64
 	seen    []uint64 // pages reached so far, one bit each
+}
+
+// reached marks page id as reached and says whether it was before.
+func (w *treeWalk) reached(id uint64) bool {
+	was := w.seen[id/64]&(1<<(id%64)) != 0
+	w.seen[id/64] |= 1 << (id % 64)
+	return was
 }
 
 // span is the bytes of one page as walkTree reads them: a page of the file (at byte base,
@@ -130,10 +136,9 @@ func (w *treeWalk) page(id uint64, name string) error {
 	if id < 2 || id >= w.hwm {
 		return fmt.Errorf("bucket %s names page %d, outside the file's %d", name, id, w.hwm)
 	}
-	if w.seen[id/64]&(1<<(id%64)) != 0 {
+	if w.reached(id) {
 		return fmt.Errorf("page %d is reached twice (bucket %s)", id, name)
 	}
-	w.seen[id/64] |= 1 << (id % 64)
 	h := make([]byte, 16)
 	if _, err := w.f.ReadAt(h, int64(id*w.ps)); err != nil {
 		return err
