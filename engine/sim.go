@@ -73,7 +73,7 @@ type walker struct {
 	// walks
 	stack     []brood
 	leafBuf   []vec
-	leafLists *leafLists
+	leafLists leafLists
 }
 
 func newWalker(c Cell) *walker {

@@ -253,9 +253,6 @@ type leafLists struct {
 func (w *walker) leaves3(ls []vec) {
 	before := w.part.pop
 	w.part.pop += uint64(len(ls))
-	if w.leafLists == nil {
-		w.leafLists = new(leafLists)
-	}
 	need, tops := &w.leafLists.need, &w.leafLists.tops
 	t := w.needRadius()
 	nn := 0

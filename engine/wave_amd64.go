@@ -7,7 +7,7 @@ const haveKernel = true
 
 // waveConsts is what waveKernel needs besides its batch: the horizon, beta (which the
 // Div kernels divide by), sigma (which the Sig kernels multiply by), the last checkpoint
-// time, and the exponential's and the normal's strips (walker.expStrips, normStrips).
+// time, and the exponential's and the normal's strips (walker.expTab, normTab).
 type waveConsts struct {
 	horizon, beta, sigma, lastCheck float64
 	exp, norm                       *zigStrip
